@@ -1,0 +1,107 @@
+"""Rooted trees as arrays.
+
+The model: a tree of ``n`` nodes is numbered in **postorder**: every child has a smaller id than
+its parent, so the root is node ``n - 1`` and a loop ``for v in range(n)`` visits children
+before parents (``reversed`` gives a preorder). Per-node arrays are indexed by node id:
+
+- ``parent[v]``: the parent's id, ``-1`` at the root;
+- ``length[v]``: the length of the branch above ``v`` (``nan`` where none was given, and at
+  the root unless the file gives one);
+- ``tip[v]``: for a tip, its index into ``taxa``; ``-1`` for an internal node;
+- ``label[v]``: the node's label as read (internal labels often carry support), or ``None``.
+
+``taxa`` is the taxon namespace shared by every tree of a sample (sorted labels), so tip index
+``i`` is bit ``i`` of a clade bitset. Children are derived once, in CSR form
+(``child_ptr``, ``child_idx``): the children of ``v`` are
+``child_idx[child_ptr[v]:child_ptr[v + 1]]``, in the order they were read.
+
+Example, ``((A,B),C);`` with taxa ``("A", "B", "C")``::
+
+    node  0=A  1=B  2=(A,B)  3=C  4=root
+    parent  2    2    4       4    -1
+    tip     0    1   -1       2    -1
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass(frozen=True, eq=False)
+class Tree:
+    """A rooted tree in postorder arrays (see the module docstring)."""
+
+    parent: np.ndarray  # int32, shape (n,)
+    length: np.ndarray  # float64, shape (n,)
+    tip: np.ndarray  # int32, shape (n,)
+    taxa: tuple[str, ...]
+    label: tuple[str | None, ...] = ()
+    child_ptr: np.ndarray = field(init=False, repr=False)
+    child_idx: np.ndarray = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        parent = np.asarray(self.parent, dtype=np.int32)
+        n = parent.shape[0]
+        object.__setattr__(self, "parent", parent)
+        object.__setattr__(self, "length", np.asarray(self.length, dtype=np.float64))
+        object.__setattr__(self, "tip", np.asarray(self.tip, dtype=np.int32))
+        if not self.label:
+            object.__setattr__(self, "label", (None,) * n)
+        if n and (parent[-1] != -1 or np.any(parent[:-1] <= np.arange(n - 1))):
+            raise ValueError("nodes are not in postorder: every parent id must exceed its child's")
+        # CSR children, keeping the order in which children were read (stable sort by parent).
+        order = np.argsort(parent[:-1], kind="stable").astype(np.int32)
+        counts = np.bincount(parent[:-1], minlength=n) if n > 1 else np.zeros(n, dtype=np.int64)
+        ptr = np.zeros(n + 1, dtype=np.int32)
+        np.cumsum(counts, out=ptr[1:])
+        object.__setattr__(self, "child_ptr", ptr)
+        object.__setattr__(self, "child_idx", order)
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.parent.shape[0])
+
+    @property
+    def root(self) -> int:
+        return self.n_nodes - 1
+
+    @property
+    def is_tip(self) -> np.ndarray:
+        return self.tip >= 0
+
+    def children(self, v: int) -> np.ndarray:
+        return self.child_idx[self.child_ptr[v] : self.child_ptr[v + 1]]
+
+    def tip_ids(self) -> np.ndarray:
+        """Node ids of the tips, in node order."""
+        return np.flatnonzero(self.tip >= 0)
+
+    def node_of_taxon(self) -> np.ndarray:
+        """``node_of_taxon()[i]`` is the node id of taxon ``i`` (``-1`` when absent)."""
+        out = np.full(len(self.taxa), -1, dtype=np.int32)
+        tips = self.tip_ids()
+        out[self.tip[tips]] = tips
+        return out
+
+
+def clade_masks(tree: Tree) -> list[int]:
+    """The clade of every node as a Python-int bitset over ``tree.taxa`` (bit ``i`` = taxon ``i``).
+
+    Postorder makes this one pass: a node's set is the union of its children's.
+
+    >>> t = Tree([2, 2, 4, 4, -1], [1.0] * 5, [0, 1, -1, 2, -1], ("A", "B", "C"))
+    >>> clade_masks(t)
+    [1, 2, 3, 4, 7]
+    """
+    masks = [0] * tree.n_nodes
+    parent = tree.parent.tolist()
+    tip = tree.tip.tolist()
+    for v in range(tree.n_nodes):
+        if tip[v] >= 0:
+            masks[v] |= 1 << tip[v]
+        p = parent[v]
+        if p >= 0:
+            masks[p] |= masks[v]
+    return masks
