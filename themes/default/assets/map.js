@@ -1,0 +1,485 @@
+/* Distribution map: draws window.AtlasData.places into #atlas-map with plotly scattergeo.
+ *
+ * Data (written by the site builder):
+ *   data/places.js  window.AtlasData.places = [{id, name, lat, lon, href, precision,
+ *                     objects: [{id, title, href, clade_colour: 0..7 | null}]}]
+ *   data/world.js   window.PlotlyGeoAssets.topojson.world_110m (Natural Earth outlines), so
+ *                   plotly never fetches outlines from the network
+ *   data/basemap.js optional window.AtlasData.basemap, a GeoJSON FeatureCollection of the study
+ *                   area, drawn as filled land under the points
+ * The plot's data-places attribute (space-separated place ids), when present, limits the map to
+ * those places. One marker per place, its area proportional to the number of objects there, with
+ * the count written beside it when above one; its colour is the objects' clade colour when they
+ * all share one, else a neutral one. Generalised locations are drawn as rings. Clicking a marker
+ * opens the place page. Colours come from the stylesheet's custom properties, so the dark scheme
+ * works, and the map is redrawn when the scheme changes.
+ *
+ * Interface words can be translated by the template through data attributes on the plot div:
+ * data-text-object ("object"), data-text-objects ("objects"), data-text-none ("No objects"),
+ * data-text-more ("more"), data-text-generalised ("Location generalised").
+ *
+ * No globals are created. If plotly, the outlines or the places are missing, nothing is drawn,
+ * the empty box is hidden (class plot-unavailable) and the page's text equivalent stays.
+ */
+(function () {
+  "use strict";
+
+  var MAX_LISTED = 12; // objects named in a hover box before "and N more"
+  var MIN_SPAN_DEG = 4; // smallest map extent around the points, in degrees
+  var MARGIN_FRACTION = 0.25; // room left around the points, as a fraction of their extent
+  var PAPER_WIDTH_PX = 660; // printed size: A4 or US Letter less margins, at 96 px per inch
+  var PAPER_HEIGHT_PX = 440;
+
+  function cssVar(name, fallback) {
+    var value = getComputedStyle(document.documentElement).getPropertyValue(name).trim();
+    return value || fallback;
+  }
+
+  function escapeText(text) {
+    return String(text)
+      .replace(/&/g, "&amp;")
+      .replace(/</g, "&lt;")
+      .replace(/>/g, "&gt;")
+      .replace(/"/g, "&quot;");
+  }
+
+  function siteHref(href) {
+    if (typeof href !== "string" || href === "") return null;
+    if (/^[a-z][a-z0-9+.-]*:/i.test(href) || href.charAt(0) === "/" || href.charAt(0) === "\\") {
+      return null;
+    }
+    return (document.body.dataset.root || "") + href;
+  }
+
+  function isCoordinate(value, limit) {
+    return typeof value === "number" && isFinite(value) && Math.abs(value) <= limit;
+  }
+
+  function selectPlaces(all, wanted) {
+    var usable = all.filter(function (p) {
+      return p && isCoordinate(p.lat, 90) && isCoordinate(p.lon, 180);
+    });
+    if (wanted.length === 0) return usable;
+    var keep = new Set(wanted);
+    return usable.filter(function (p) {
+      return keep.has(p.id);
+    });
+  }
+
+  // The clade colour index shared by all of a place's objects, or null when they differ.
+  function sharedClade(objects) {
+    var shared = null;
+    for (var i = 0; i < objects.length; i++) {
+      var c = objects[i] && objects[i].clade_colour;
+      if (typeof c !== "number" || c < 0 || c > 7 || Math.floor(c) !== c) return null;
+      if (shared === null) shared = c;
+      else if (shared !== c) return null;
+    }
+    return shared;
+  }
+
+  function interfaceWords(div) {
+    var d = div.dataset;
+    return {
+      object: d.textObject || "object",
+      objects: d.textObjects || "objects",
+      none: d.textNone || "No objects",
+      more: d.textMore || "more",
+      generalised: d.textGeneralised || "Location generalised",
+    };
+  }
+
+  function hoverText(place, words) {
+    var objects = Array.isArray(place.objects) ? place.objects : [];
+    var lines = ["<b>" + escapeText(place.name || place.id) + "</b>"];
+    if (place.precision === "generalised") {
+      lines.push("<i>" + escapeText(words.generalised) + "</i>");
+    }
+    if (objects.length === 0) {
+      lines.push(escapeText(words.none));
+    } else {
+      var noun = objects.length === 1 ? words.object : words.objects;
+      lines.push(objects.length + " " + escapeText(noun) + ":");
+    }
+    objects.slice(0, MAX_LISTED).forEach(function (o) {
+      lines.push("\u2022 " + escapeText((o && (o.title || o.id)) || ""));
+    });
+    if (objects.length > MAX_LISTED) {
+      lines.push("+ " + (objects.length - MAX_LISTED) + " " + escapeText(words.more));
+    }
+    return lines.join("<br>");
+  }
+
+  // On the Natural Earth projection, the screen length of one degree of longitude divided by
+  // that of one degree of latitude, at latitude phi (radians). From the projection's polynomial
+  // (Savric, Jenny, Patterson, Petrovic & Hurni 2011, Cartography and Geographic Information
+  // Science 38(4)): x = lambda * l(phi), y = m(phi), so the ratio is l(phi) / m'(phi).
+  // At the equator 0.8707 / 1.007226 = 0.864; at 45 degrees about 0.79.
+  function lonPerLatScale(phi) {
+    var p2 = phi * phi;
+    var p4 = p2 * p2;
+    var p6 = p4 * p2;
+    var p8 = p4 * p4;
+    var p10 = p8 * p2;
+    var l = 0.8707 - 0.131979 * p2 - 0.013791 * p4 + 0.003971 * p10 - 0.001529 * p10 * p2;
+    var dm =
+      1.007226 + 3 * 0.015085 * p2 - 7 * 0.044475 * p6 + 9 * 0.028874 * p8 - 11 * 0.005916 * p10;
+    return Math.max(l / dm, 0.2);
+  }
+
+  // Longitude/latitude ranges around the points, with a margin, widened in one direction so
+  // that their shape matches the plot box (plotly keeps the map's aspect and would otherwise
+  // leave bands of empty space), and kept on the globe.
+  function fittedRanges(places, boxWidth, boxHeight) {
+    var lats = places.map(function (p) {
+      return p.lat;
+    });
+    var lons = places.map(function (p) {
+      return p.lon;
+    });
+    function padded(values) {
+      var lo = Math.min.apply(null, values);
+      var hi = Math.max.apply(null, values);
+      var pad = Math.max((hi - lo) * MARGIN_FRACTION, (MIN_SPAN_DEG - (hi - lo)) / 2, 0.5);
+      return [lo - pad, hi + pad];
+    }
+    function widen(range, span) {
+      var mid = (range[0] + range[1]) / 2;
+      return [mid - span / 2, mid + span / 2];
+    }
+    function clamp(range, limit) {
+      return [Math.max(-limit, range[0]), Math.min(limit, range[1])];
+    }
+    var lat = padded(lats);
+    var lon = padded(lons);
+    if (boxWidth > 0 && boxHeight > 0) {
+      var k = lonPerLatScale(((lat[0] + lat[1]) / 2) * (Math.PI / 180));
+      var wanted = boxWidth / boxHeight;
+      var shape = ((lon[1] - lon[0]) * k) / (lat[1] - lat[0]);
+      if (shape < wanted) lon = widen(lon, ((lat[1] - lat[0]) * wanted) / k);
+      else lat = widen(lat, ((lon[1] - lon[0]) * k) / wanted);
+    }
+    return { lat: clamp(lat, 90), lon: clamp(lon, 180) };
+  }
+
+  // Signed area of a ring in the lon/lat plane: positive when counter-clockwise.
+  function signedArea(ring) {
+    var sum = 0;
+    for (var i = 0, j = ring.length - 1; i < ring.length; j = i++) {
+      sum += (ring[j][0] - ring[i][0]) * (ring[j][1] + ring[i][1]);
+    }
+    return sum / 2;
+  }
+
+  // Outer rings of every Polygon / MultiPolygon in a GeoJSON FeatureCollection. Rings are
+  // turned clockwise, the winding the spherical fill expects for a small area (a
+  // counter-clockwise ring would be filled as the rest of the globe).
+  function outerRings(collection) {
+    var rings = [];
+    var features = (collection && collection.features) || [];
+    features.forEach(function (f) {
+      var g = f && f.geometry;
+      if (!g) return;
+      var polygons = [];
+      if (g.type === "Polygon") polygons = [g.coordinates];
+      else if (g.type === "MultiPolygon") polygons = g.coordinates || [];
+      polygons.forEach(function (polygon) {
+        var ring = polygon && polygon[0];
+        if (!Array.isArray(ring) || ring.length < 4) return;
+        var clean = ring.filter(function (pt) {
+          return Array.isArray(pt) && isCoordinate(pt[0], 180) && isCoordinate(pt[1], 90);
+        });
+        if (clean.length < 4) return;
+        rings.push(signedArea(clean) < 0 ? clean : clean.slice().reverse());
+      });
+    });
+    return rings;
+  }
+
+  // Colours for the screen come from the stylesheet (so the dark scheme works); on paper the
+  // map is drawn in greys on white, with the clade colours kept.
+  function screenColours() {
+    return {
+      fg: cssVar("--fg", "#1c1f23"),
+      bg: cssVar("--bg", "#ffffff"),
+      surface: cssVar("--surface", "#f4f3ef"),
+      border: cssVar("--border", "#cfccc4"),
+      land: cssVar("--land", "#eceae4"),
+      landLine: cssVar("--land-line", "#b9b5ab"),
+      region: cssVar("--region", "#dde6d6"),
+      markerLine: cssVar("--marker-line", "#1c1f23"),
+      muted: cssVar("--muted", "#565c63"),
+      neutral: cssVar("--muted", "#565c63"),
+      clades: cladeColours(),
+    };
+  }
+
+  function cladeColours() {
+    return [0, 1, 2, 3, 4, 5, 6, 7].map(function (i) {
+      return cssVar("--clade-" + i, "#0072b2");
+    });
+  }
+
+  function paperColours() {
+    return {
+      fg: "#000000",
+      bg: "#ffffff",
+      surface: "#ffffff",
+      border: "#999999",
+      land: "#eeeeee",
+      landLine: "#999999",
+      region: "#d9d9d9",
+      markerLine: "#000000",
+      muted: "#333333",
+      neutral: "#666666",
+      clades: cladeColours(),
+    };
+  }
+
+  function buildFigure(places, basemap, box, colours, words) {
+    var font = getComputedStyle(document.body).fontFamily || "sans-serif";
+    var data = [];
+
+    outerRings(basemap).forEach(function (ring) {
+      data.push({
+        type: "scattergeo",
+        mode: "lines",
+        lon: ring.map(function (pt) {
+          return pt[0];
+        }),
+        lat: ring.map(function (pt) {
+          return pt[1];
+        }),
+        fill: "toself",
+        fillcolor: colours.region,
+        line: { color: colours.landLine, width: 1 },
+        hoverinfo: "skip",
+        showlegend: false,
+      });
+    });
+
+    var counts = places.map(function (p) {
+      return Array.isArray(p.objects) ? p.objects.length : 0;
+    });
+    var fills = places.map(function (p) {
+      var c = sharedClade(Array.isArray(p.objects) ? p.objects : []);
+      return c === null ? colours.neutral : colours.clades[c];
+    });
+    var generalised = places.map(function (p) {
+      return p.precision === "generalised";
+    });
+    data.push({
+      type: "scattergeo",
+      mode: "markers+text",
+      lon: places.map(function (p) {
+        return p.lon;
+      }),
+      lat: places.map(function (p) {
+        return p.lat;
+      }),
+      text: counts.map(function (n) {
+        return n > 1 ? String(n) : "";
+      }),
+      textposition: "top right",
+      textfont: { family: font, size: 12, color: colours.fg },
+      hovertext: places.map(function (p) {
+        return hoverText(p, words);
+      }),
+      hoverinfo: "text",
+      customdata: places.map(function (p) {
+        return siteHref(p.href);
+      }),
+      marker: {
+        // area proportional to the count: diameter grows with its square root
+        size: counts.map(function (n) {
+          return 8 + 5 * Math.sqrt(Math.max(n, 1) - 1);
+        }),
+        sizemode: "diameter",
+        symbol: generalised.map(function (g) {
+          return g ? "circle-open" : "circle";
+        }),
+        color: fills,
+        opacity: 0.92,
+        line: {
+          width: generalised.map(function (g) {
+            return g ? 3 : 1.25;
+          }),
+          color: generalised.map(function (g, i) {
+            return g ? fills[i] : colours.markerLine;
+          }),
+        },
+      },
+      showlegend: false,
+    });
+
+    var ranges = fittedRanges(places, box.width, box.height);
+    var layout = {
+      font: { family: font, color: colours.fg, size: 13 },
+      paper_bgcolor: "rgba(0,0,0,0)",
+      margin: { l: 0, r: 0, t: 0, b: 0 },
+      hovermode: "closest",
+      hoverlabel: {
+        bgcolor: colours.surface,
+        bordercolor: colours.border,
+        font: { family: font, color: colours.fg, size: 13 },
+        align: "left",
+      },
+      dragmode: "pan",
+      modebar: { bgcolor: "rgba(0,0,0,0)", color: colours.muted, activecolor: colours.fg },
+      showlegend: false,
+      geo: {
+        resolution: 110,
+        fitbounds: false,
+        projection: { type: "natural earth" },
+        lataxis: { range: ranges.lat },
+        lonaxis: { range: ranges.lon },
+        showland: true,
+        landcolor: colours.land,
+        showocean: true,
+        oceancolor: colours.bg,
+        showlakes: false,
+        showrivers: false,
+        showcountries: true,
+        countrycolor: colours.landLine,
+        countrywidth: 0.6,
+        showcoastlines: true,
+        coastlinecolor: colours.landLine,
+        coastlinewidth: 0.8,
+        showframe: false,
+        bgcolor: "rgba(0,0,0,0)",
+      },
+    };
+    return { data: data, layout: layout };
+  }
+
+  var CONFIG = {
+    responsive: true,
+    displaylogo: false,
+    // plotly.js 4 offers to upload the chart to a remote service by default: keep everything
+    // on the site (no share button, no server URL) and keep plotly's own logging quiet.
+    showSendToCloud: false,
+    plotlyServerURL: "",
+    logging: 0,
+    scrollZoom: false,
+    showTips: false,
+    displayNotifier: false,
+    modeBarButtonsToRemove: ["sendChartToCloud", "select2d", "lasso2d", "toggleHover"],
+    toImageButtonOptions: { format: "svg", filename: "distribution-map" },
+  };
+
+  // The plot box is one image to assistive technology (role="img") and the page carries a text
+  // equivalent, so plotly's tool bar buttons are kept out of the tab order: keyboard users go
+  // straight past the figure instead of stepping through unlabelled controls inside an image.
+  function keepOutOfTabOrder(div) {
+    var controls = div.querySelectorAll("button, a[href], [tabindex]");
+    for (var i = 0; i < controls.length; i++) controls[i].setAttribute("tabindex", "-1");
+  }
+
+  function markUnavailable(div) {
+    div.classList.add("plot-unavailable");
+  }
+
+  function hasWorldOutlines() {
+    var assets = window.PlotlyGeoAssets;
+    return Boolean(assets && assets.topojson && assets.topojson.world_110m);
+  }
+
+  function draw() {
+    var div = document.getElementById("atlas-map");
+    if (!div) return;
+    var Plotly = window.Plotly;
+    var all = window.AtlasData && window.AtlasData.places;
+    // Without the bundled outlines plotly would fetch them from the network: do not draw.
+    var ready = Plotly && typeof Plotly.newPlot === "function" && Array.isArray(all);
+    if (!ready || !hasWorldOutlines()) {
+      markUnavailable(div);
+      return;
+    }
+    var wanted = (div.dataset.places || "").split(/\s+/).filter(Boolean);
+    var places = selectPlaces(all, wanted);
+    if (places.length === 0) {
+      markUnavailable(div);
+      return;
+    }
+    var basemap = window.AtlasData.basemap || null;
+
+    // mode: "first" (newPlot), "screen" (redraw after a resize or a change of scheme) or
+    // "paper" (fixed size, greys on white, for printing).
+    function render(mode) {
+      var paper = mode === "paper";
+      var box = paper
+        ? { width: PAPER_WIDTH_PX, height: PAPER_HEIGHT_PX }
+        : { width: div.clientWidth, height: div.clientHeight };
+      var colours = paper ? paperColours() : screenColours();
+      var fig = buildFigure(places, basemap, box, colours, interfaceWords(div));
+      if (paper) {
+        fig.layout.width = PAPER_WIDTH_PX;
+        fig.layout.height = PAPER_HEIGHT_PX;
+      }
+      return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout, CONFIG);
+    }
+
+    var drawing;
+    try {
+      drawing = render("first");
+    } catch (err) {
+      markUnavailable(div);
+      return;
+    }
+    Promise.resolve(drawing).then(
+      function () {
+        var figure = div.closest("figure");
+        if (figure) figure.classList.add("has-plot");
+        keepOutOfTabOrder(div);
+        div.on("plotly_afterplot", function () {
+          keepOutOfTabOrder(div);
+        });
+        div.on("plotly_click", function (event) {
+          var point = event && event.points && event.points[0];
+          var href = point && point.customdata;
+          if (typeof href === "string" && href) window.location.href = href;
+        });
+        // A pointer cursor over points that lead somewhere.
+        div.on("plotly_hover", function (event) {
+          var point = event && event.points && event.points[0];
+          div.classList.toggle("is-pointing", Boolean(point && point.customdata));
+        });
+        div.on("plotly_unhover", function () {
+          div.classList.remove("is-pointing");
+        });
+        // Refit the ranges when the box changes shape (phone rotated, window resized).
+        var pending = null;
+        window.addEventListener("resize", function () {
+          clearTimeout(pending);
+          pending = setTimeout(function () {
+            render("screen");
+          }, 250);
+        });
+        var scheme = window.matchMedia && window.matchMedia("(prefers-color-scheme: dark)");
+        if (scheme && scheme.addEventListener) {
+          scheme.addEventListener("change", function () {
+            render("screen");
+          });
+        }
+        window.addEventListener("beforeprint", function () {
+          render("paper");
+        });
+        window.addEventListener("afterprint", function () {
+          // back to the box's own size: react keeps the paper size, resize refits it
+          Promise.resolve(render("screen")).then(function () {
+            if (Plotly.Plots && Plotly.Plots.resize) return Plotly.Plots.resize(div);
+          });
+        });
+      },
+      function () {
+        markUnavailable(div);
+      }
+    );
+  }
+
+  if (document.readyState === "loading") {
+    document.addEventListener("DOMContentLoaded", draw);
+  } else {
+    draw();
+  }
+})();
