@@ -24,6 +24,7 @@ Example, ``((A,B),C);`` with taxa ``("A", "B", "C")``::
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -105,3 +106,64 @@ def clade_masks(tree: Tree) -> list[int]:
         if p >= 0:
             masks[p] |= masks[v]
     return masks
+
+
+def subtree_starts(tree: Tree) -> np.ndarray:
+    """``starts[v]``: the smallest node id in the subtree of ``v``.
+
+    In postorder a subtree is a contiguous block of ids ending at its root, so the subtree of
+    ``v`` is ``starts[v] .. v``. Its first id is its leftmost tip: follow first children down,
+    here by pointer doubling (``f = f[f]``) over all nodes at once.
+
+    >>> t = Tree([2, 2, 4, 4, -1], [1.0] * 5, [0, 1, -1, 2, -1], ("A", "B", "C"))
+    >>> subtree_starts(t).tolist()
+    [0, 1, 0, 3, 0]
+    """
+    return _first_descendant([tree])
+
+
+def _first_descendant(trees: Sequence[Tree]) -> np.ndarray:
+    pieces, offset = [], 0
+    for tree in trees:
+        f = np.arange(offset, offset + tree.n_nodes, dtype=np.int64)
+        has = tree.child_ptr[1:] > tree.child_ptr[:-1]
+        f[has] = tree.child_idx[tree.child_ptr[:-1][has]] + offset
+        pieces.append(f)
+        offset += tree.n_nodes
+    f = np.concatenate(pieces) if pieces else np.zeros(0, dtype=np.int64)
+    while True:
+        g = f[f]
+        if np.array_equal(g, f):
+            return f
+        f = g
+
+
+def clade_words(trees: Sequence[Tree], n_taxa: int) -> tuple[np.ndarray, np.ndarray]:
+    """The clade of every node of every tree as bitset words: ``(rows, offsets)``.
+
+    ``rows[offsets[k] + v]`` holds ``ceil(n_taxa / 64)`` little-endian ``uint64`` words whose
+    bit ``i`` is set when taxon ``i`` is below node ``v`` of tree ``k`` (the same bits as
+    :func:`clade_masks`). Each subtree is a block of ids ``start .. v`` holding each of its
+    tips once, so its bitset is a difference of running XORs of the tips' one-hot words:
+    ``rows[v] = X[v] ^ X[start - 1]``, all nodes of all trees in a few array operations.
+
+    >>> t = Tree([2, 2, 4, 4, -1], [1.0] * 5, [0, 1, -1, 2, -1], ("A", "B", "C"))
+    >>> rows, offsets = clade_words([t, t], 3)
+    >>> rows[:, 0].tolist(), offsets.tolist()
+    ([1, 2, 3, 4, 7, 1, 2, 3, 4, 7], [0, 5, 10])
+    """
+    words = max(1, -(-n_taxa // 64))
+    offsets = np.zeros(len(trees) + 1, dtype=np.int64)
+    np.cumsum([t.n_nodes for t in trees], out=offsets[1:])
+    total = int(offsets[-1])
+    start = _first_descendant(trees)
+    tip = np.concatenate([t.tip for t in trees]) if trees else np.zeros(0, dtype=np.int32)
+    rows = np.zeros((total, words), dtype=np.uint64)
+    at = np.flatnonzero(tip >= 0)
+    taxon = tip[at].astype(np.uint64)
+    rows[at, (taxon // np.uint64(64)).astype(np.int64)] = np.uint64(1) << (taxon % np.uint64(64))
+    np.bitwise_xor.accumulate(rows, axis=0, out=rows)
+    before = start - 1
+    inner = before >= 0
+    rows[inner] ^= rows[before[inner]]
+    return rows, offsets

@@ -1,0 +1,93 @@
+"""Markdown from notes to safe HTML: render, resolve atlas links, then sanitise with nh3.
+
+Notes may link to other parts of the atlas without knowing where a page will stand, with
+``[text](object:lamp-03)``, ``character:``, ``place:``, ``page:`` and ``node:`` targets, and show
+an image from the media folder with ``![alt](media:file.svg)``. These become relative URLs for
+the page being rendered. Sanitising comes last, so nothing a note says can add a script, a
+style, an event handler or a request to another site: images may only come from the site.
+"""
+
+from __future__ import annotations
+
+import re
+from html import unescape
+from dataclasses import dataclass
+
+import markdown
+import nh3
+
+SCHEMES = {"object": "objects", "character": "characters", "place": "places", "page": "pages",
+           "node": "nodes"}
+_TAGS = set(nh3.ALLOWED_TAGS) - {"img"} | {"img", "figure", "figcaption"}
+_ATTRIBUTES = {
+    "a": {"href", "title"},
+    "img": {"src", "alt", "title", "width", "height"},
+    "abbr": {"title"},
+    "td": {"colspan", "rowspan"},
+    "th": {"colspan", "rowspan", "scope"},
+    "ol": {"start"},
+}
+_LINK = re.compile(r'(href|src)="([a-z]+):([^"#]*)(#[^"]*)?"')
+
+
+@dataclass(frozen=True)
+class Targets:
+    """What atlas links may point at: id -> file name stem, by scheme."""
+
+    known: dict[str, dict[str, str]]
+    media: frozenset[str]
+
+
+def _resolve(html: str, root: str, targets: Targets) -> str:
+    def swap(m: re.Match) -> str:
+        attr, scheme, ident, anchor = m.group(1), m.group(2), m.group(3), m.group(4) or ""
+        if scheme == "media":
+            if ident in targets.media:
+                return f'{attr}="{root}media/{ident}"'
+            return f'{attr}="#missing-media"'
+        if scheme in SCHEMES:
+            stem = targets.known.get(scheme, {}).get(ident)
+            # An unknown id is kept as a broken relative link, so the audit stage reports it.
+            return f'{attr}="{root}{SCHEMES[scheme]}/{stem or ident}.html{anchor}"'
+        return m.group(0)
+
+    return _LINK.sub(swap, html)
+
+
+def _keep_attribute(tag: str, attr: str, value: str) -> str | None:
+    """Drop image sources that do not point inside the site."""
+    if tag == "img" and attr == "src":
+        if re.match(r"^([a-z][a-z0-9+.-]*:|//)", value, re.I):
+            return None
+    return value
+
+
+def render_markdown(text: str, root: str, targets: Targets) -> str:
+    """Markdown to sanitised HTML for a page whose path to the site root is ``root``."""
+    if not text.strip():
+        return ""
+    html = markdown.markdown(text, extensions=["tables", "sane_lists", "smarty"],
+                             output_format="html")
+    html = _resolve(html, root, targets)
+    html = nh3.clean(
+        html,
+        tags=_TAGS,
+        attributes=_ATTRIBUTES,
+        url_schemes={"http", "https", "mailto"},
+        link_rel="noopener noreferrer",
+        attribute_filter=_keep_attribute,
+        strip_comments=True,
+    )
+    # An image whose source was dropped is removed; one without alt text gets an empty one.
+    html = re.sub(r"<img(?![^>]*\bsrc=)[^>]*>", "", html)
+    return re.sub(r"<img(?![^>]*\balt=)", '<img alt=""', html)
+
+
+def plain_text(text: str, limit: int = 200) -> str:
+    """The first words of a note as plain text, for summaries and descriptions."""
+    html = markdown.markdown(text)
+    words = unescape(nh3.clean(html, tags=set())).split()
+    out = " ".join(words)
+    if len(out) > limit:
+        out = out[:limit].rsplit(" ", 1)[0] + "…"
+    return out  # plain text: the template escapes it

@@ -1,0 +1,270 @@
+"""Page contexts for the site-wide pages: home, lineage tree, map, places, methods, credits,
+free pages. Like :mod:`atlas.site.views`, plain functions returning plain data.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+
+import numpy as np
+
+from ..analysis.results import Results
+from ..model import Atlas
+from .figures import LayoutNode
+from .markdown import plain_text, render_markdown
+from .views import REFERENCES, Links, PagePlan, fmt, node_title, root_of
+
+PLOT_SCRIPTS = ("assets/plotly.min.js",)
+TREE_SCRIPTS = (*PLOT_SCRIPTS, "data/tree.js", "assets/tree.js")
+MAP_SCRIPTS = (*PLOT_SCRIPTS, "data/world.js", "data/basemap.js", "data/places.js",
+               "assets/map.js")
+
+
+def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> PagePlan:
+    config = atlas.config
+    visible = atlas.visible_objects()
+    lineages = []
+    for v, notes in sorted(notes_by_node.items()):
+        for note in notes:
+            lineages.append({"title": note.title, "href": links.nodes.get(results.ids[v], ""),
+                             "summary": plain_text(note.body, 160),
+                             "support": fmt(results.summary.support[v]),
+                             "count": len(results.members[v])})
+    counts = [
+        (str(len(atlas.objects)), "objects"),
+        (str(len(atlas.characters)), "characters"),
+        (str(len(atlas.places)), "places"),
+        (str(results.summary.n_trees), "sampled trees"),
+    ]
+    return PagePlan("index.html", "index.html", {
+        "kind": "home", "title": config.title, "subtitle": config.subtitle, "counts": counts,
+        "lineages": lineages,
+        "pages": [{"title": p.title, "href": links.pages[p.name], "summary": plain_text(p.body, 160)}
+                  for p in atlas.pages],
+        "recent": [{"title": o.title, "href": links.objects[o.id]}
+                   for o in sorted(visible, key=lambda o: o.title)[:12]],
+    })
+
+
+def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> list[dict]:
+    """The tree as open/item/close events: a nested list the template writes without recursion."""
+    tree = results.tree
+    events: list[dict] = []
+    stack: list[tuple[int, bool]] = [(tree.root, False)]
+    while stack:
+        v, closing = stack.pop()
+        if closing:
+            events.append({"event": "close"})
+            continue
+        nid = results.ids[v]
+        if tree.tip[v] >= 0:
+            obj = atlas.objects[nid]
+            events.append({"event": "tip", "title": obj.title if not obj.withheld else
+                           "Withheld object", "href": links.objects[nid]})
+            continue
+        events.append({"event": "open", "title": node_title(atlas, results, v, notes_by_node),
+                       "href": links.nodes[nid], "support": fmt(results.summary.support[v])})
+        stack.append((v, True))
+        for c in reversed(tree.children(v).tolist()):
+            stack.append((c, False))
+    return events
+
+
+def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
+              use_lengths: bool) -> PagePlan:
+    summary = results.summary
+    method = {"majority": "majority-rule consensus", "mcc": "maximum clade credibility tree",
+              "given": "summary tree given with the study"}[summary.method]
+    internal = [v for v in range(results.tree.n_nodes) if results.tree.tip[v] < 0
+                and v != results.tree.root]
+    supports = summary.support[internal] if internal else np.array([])
+    return PagePlan("tree.html", "tree.html", {
+        "kind": "tree", "title": "Lineage tree",
+        "method": method, "n_trees": summary.n_trees,
+        "axis": "branch lengths as given in the trees" if use_lengths else "equal steps",
+        "outgroup": [atlas.objects[o].title for o in atlas.config.analysis["outgroup"]],
+        "n_clades": len(internal),
+        "well_supported": int(np.sum(supports >= 0.95)) if len(supports) else 0,
+        "outline": _outline(atlas, results, links, notes_by_node),
+    }, scripts=TREE_SCRIPTS)
+
+
+def _place_rows(atlas: Atlas, links: Links) -> tuple[list[dict], list[dict]]:
+    by_place: dict[str, list] = defaultdict(list)
+    unplaced = []
+    for obj in atlas.visible_objects():
+        place = atlas.places.get(obj.place) if obj.place else None
+        if place is None or not place.has_coordinates:
+            unplaced.append({"title": obj.title, "href": links.objects[obj.id],
+                             "why": "location withheld" if obj.place_withheld or (
+                                 place is not None and place.precision == "withheld")
+                             else "no coordinates" if place is not None else "no place recorded"})
+        by_place[obj.place or ""].append(obj)
+    rows = []
+    for pid, place in sorted(atlas.places.items(), key=lambda kv: kv[1].name):
+        rows.append({"name": place.name, "href": links.places[pid],
+                     "count": len(by_place.get(pid, [])),
+                     "where": _where(place)})
+    unplaced.sort(key=lambda r: r["title"])
+    return rows, unplaced
+
+
+def _where(place) -> str:
+    if place.precision == "withheld":
+        return "withheld"
+    if not place.has_coordinates:
+        return "no coordinates"
+    if place.precision == "generalised":
+        return f"about {fmt(place.lat, 1)}, {fmt(place.lon, 1)} (generalised)"
+    return f"{fmt(place.lat, 4)}, {fmt(place.lon, 4)}"
+
+
+def map_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
+    rows, unplaced = _place_rows(atlas, links)
+    return PagePlan("map.html", "map.html", {
+        "kind": "map", "title": "Distribution map", "places": rows, "unplaced": unplaced,
+        "has_generalised": any(p.precision == "generalised" for p in atlas.places.values()),
+    }, scripts=MAP_SCRIPTS)
+
+
+def place_page(atlas: Atlas, results: Results, links: Links, pid: str) -> PagePlan:
+    place = atlas.places[pid]
+    path = links.places[pid]
+    root = root_of(path)
+    objects = [o for o in atlas.visible_objects() if o.place == pid]
+    facts = [("Place id", pid), ("Coordinates", _where(place))]
+    for lang, name in sorted(place.names.items()):
+        facts.append((f"Name ({lang})", name))
+    return PagePlan(path, "place.html", {
+        "kind": "place", "title": place.name, "facts": facts, "place_id": pid,
+        "precision": place.precision, "mapped": place.has_coordinates,
+        "objects": [{"title": o.title, "href": root + links.objects[o.id],
+                     "period": o.period, "community": o.community}
+                    for o in sorted(objects, key=lambda o: o.title)],
+        "breadcrumbs": [("Distribution map", root + "map.html")],
+    }, scripts=MAP_SCRIPTS if place.has_coordinates else ())
+
+
+def methods_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
+    sample = atlas.sample
+    analysis = atlas.config.analysis
+    n_taxa = len(atlas.taxa)
+    cells = atlas.cells
+    coded = [row for row in cells if row]
+    total_cells = sum(len(r) for r in coded)
+    missing = sum(1 for r in coded for c in r if c in ("?", ""))
+    gaps = sum(1 for r in coded for c in r if c == "-")
+    poly = sum(1 for r in coded for c in r if "/" in c)
+    par = results.parsimony
+    summary = results.summary
+    internal = [v for v in range(results.tree.n_nodes)
+                if results.tree.tip[v] < 0 and v != results.tree.root]
+    supports = summary.support[internal] if internal else np.array([])
+    data = [
+        ("Objects (tips of the trees)", str(n_taxa)),
+        ("Objects without a matrix row", str(n_taxa - len(coded))),
+        ("Discrete characters", str(len(atlas.discrete))),
+        ("Continuous characters", str(len(atlas.continuous_characters))),
+        ("Unknown cells (?)", f"{missing} of {total_cells} ({100 * missing / max(total_cells, 1):.1f}%)"),
+        ("Not applicable cells (-)", str(gaps)),
+        ("Polymorphic cells", str(poly)),
+    ]
+    trees = [
+        ("Tree file", sample.file),
+        ("Trees read", str(sample.read)),
+        ("Burn-in", f"{sample.burnin} trees ({100 * analysis['burnin']:.0f}%)"),
+        ("Trees used", str(len(sample.trees))),
+        ("Summary tree", summary.method),
+        ("Outgroup", ", ".join(analysis["outgroup"]) or "none: trees are rooted as written"),
+        ("Clades in the summary tree", str(len(internal))),
+        ("Clades with support of 0.95 or more", str(int(np.sum(supports >= 0.95)))),
+    ]
+    parsimony = [("Tree length (steps)", str(int(par.length)))]
+    for label, attr in (("Ensemble consistency index (CI)", "ensemble_ci"),
+                        ("Ensemble retention index (RI)", "ensemble_ri"),
+                        ("Rescaled consistency index (RC)", "ensemble_rc")):
+        value = getattr(par, attr, None)
+        if value is not None:
+            parsimony.append((label, fmt(float(value), 3)))
+    model = []
+    fit = results.fit
+    if fit is not None:
+        model = [("Model", {"mk": "Mk (equal rates)",
+                            "mk-gain-loss": "Mk with separate gain and loss rates"}[fit.model]
+                  + (", Mkv correction for variable characters" if fit.variable_only else "")),
+                 ("Rate variation", "four discrete gamma categories" if fit.alpha is not None
+                  else "equal rates"),
+                 *[(f"Rate ({k})", f"{v:.4g}") for k, v in sorted(fit.rates.items())],
+                 *([("Gamma shape (alpha)", f"{fit.alpha:.3g}")] if fit.alpha is not None else []),
+                 ("Log-likelihood", f"{fit.loglik:.2f}")]
+    paragraph = (
+        f"The atlas summarises {len(sample.trees)} trees sampled after discarding the first "
+        f"{sample.burnin} of {sample.read} as burn-in, as a "
+        f"{'majority-rule consensus tree' if summary.method == 'majority' else 'summary tree'} "
+        f"with clade support given as the fraction of sampled trees that contain each clade. "
+        f"Ancestral states were reconstructed by parsimony (Fitch 1971) and by maximum "
+        f"likelihood under the Mk model (Lewis 2001)"
+        + (" with gamma-distributed rates across characters (Yang 1994)"
+           if fit is not None and fit.alpha is not None else "")
+        + "; state probabilities at each clade are averaged over the sampled trees that contain "
+        "it, and expected numbers of changes per branch follow Minin & Suchard (2008)."
+    )
+    return PagePlan("methods.html", "methods.html", {
+        "kind": "methods", "title": "Methods", "paragraph": paragraph, "data": data,
+        "trees": trees, "parsimony": parsimony, "model": model,
+        "references": [REFERENCES[k] for k in ("margush", "fitch", "kluge", "farris", "lewis",
+                                               "yang", "minin")],
+        "gaps": _gaps(atlas, links),
+    })
+
+
+def _gaps(atlas: Atlas, links: Links) -> list[dict]:
+    """Published objects with missing data, by kind (withheld objects are not named)."""
+    visible = sorted(atlas.visible_objects(), key=lambda o: o.title)
+    kinds = [
+        ("without a row in the trait matrix (their traits are unknown)",
+         [o for o in visible if not o.has_row]),
+        ("without a note", [o for o in visible if not o.has_note]),
+        ("without a place on the map", [
+            o for o in visible if not (o.place and atlas.places[o.place].has_coordinates
+                                       and atlas.places[o.place].precision != "withheld")]),
+    ]
+    return [{"what": what, "objects": [{"title": o.title, "href": links.objects[o.id]}
+                                       for o in objs]} for what, objs in kinds if objs]
+
+
+def credits_page(atlas: Atlas, links: Links) -> PagePlan:
+    images = []
+    for obj in atlas.visible_objects():
+        for im in obj.images:
+            images.append({"file": im.file, "credit": im.credit, "licence": im.licence,
+                           "of": obj.title, "href": links.objects[obj.id]})
+    for c in atlas.characters:
+        if c.image is not None:
+            images.append({"file": c.image.file, "credit": c.image.credit,
+                           "licence": c.image.licence, "of": c.label,
+                           "href": links.characters[c.id]})
+    images.sort(key=lambda r: (r["file"], r["of"]))
+    return PagePlan("credits.html", "credits.html", {
+        "kind": "credits", "title": "Credits", "licence": atlas.config.licence,
+        "images": images,
+    })
+
+
+def free_page(atlas: Atlas, links: Links, page) -> PagePlan:
+    path = links.pages[page.name]
+    return PagePlan(path, "page.html", {
+        "kind": "page", "title": page.title,
+        "body": render_markdown(page.body, root_of(path), links.targets),
+    })
+
+
+def layout_data(layout: list[LayoutNode], use_lengths: bool, outgroup) -> dict:
+    return {
+        "nodes": [{"id": n.id if not n.withheld else "", "kind": n.kind, "x": n.x, "y": n.y,
+                   "parent": n.parent, "label": n.label, "href": n.href,
+                   "support": n.support, "withheld": n.withheld} for n in layout],
+        "x_title": "Branch length" if use_lengths else "Steps from the root",
+        "x_axis": "depth",
+        "outgroup": list(outgroup),
+    }

@@ -1,0 +1,127 @@
+"""The plan stage: every page context, data script and copied file of the site, before any
+rendering. ``plan_site`` gathers all data first; the render and write stages only turn this
+plan into bytes and files.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+
+from ..analysis.results import Results
+from ..model import Atlas
+from . import overview, views
+from .figures import tree_layout, tree_svg
+from .views import Links, PagePlan
+
+
+@dataclass(frozen=True)
+class SitePlan:
+    pages: list[PagePlan]
+    data: dict[str, str]  # "data/tree.js" -> script text
+    copies: dict[str, Path]  # output path -> source file (media, vendored assets)
+    files: dict[str, str]  # other generated files (static figures)
+    links: Links
+    nav: list[tuple[str, str]]  # (label, site-root-relative href)
+
+
+def js_global(name: str, value) -> str:
+    """A classic script assigning data into ``window.AtlasData`` (JSON cannot load under file://).
+
+    ``</`` is escaped so no value can close a script element.
+    """
+    text = json.dumps(value, ensure_ascii=False, sort_keys=True, separators=(",", ":"))
+    text = text.replace("</", "<\\/").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+    return ("window.AtlasData = window.AtlasData || {};\n"
+            f"window.AtlasData.{name} = {text};\n")
+
+
+def plotly_js() -> Path:
+    """plotly.js as shipped inside the installed plotly package (no download, ever)."""
+    return Path(str(resources.files("plotly") / "package_data" / "plotly.min.js"))
+
+
+def world_js() -> str:
+    outlines = resources.files("atlas.basemaps").joinpath("world_110m.json").read_text("utf-8")
+    return ("window.PlotlyGeoAssets = window.PlotlyGeoAssets || {topojson: {}};\n"
+            f"window.PlotlyGeoAssets.topojson[\"world_110m\"] = {outlines.strip()};\n")
+
+
+def places_data(atlas: Atlas, links: Links, results: Results) -> list[dict]:
+    by_place: dict[str, list] = {}
+    for obj in atlas.visible_objects():
+        if obj.place:
+            by_place.setdefault(obj.place, []).append(obj)
+    out = []
+    for pid, place in sorted(atlas.places.items()):
+        if not place.has_coordinates or place.precision == "withheld":
+            continue
+        objs = sorted(by_place.get(pid, []), key=lambda o: o.id)
+        out.append({
+            "id": pid, "name": place.name, "lat": place.lat, "lon": place.lon,
+            "href": links.places[pid], "precision": place.precision,
+            "objects": [{"id": o.id, "title": o.title, "href": links.objects[o.id],
+                         "clade_colour": None} for o in objs],
+        })
+    return out
+
+
+def plan_site(atlas: Atlas, results: Results) -> SitePlan:
+    links = views.make_links(atlas, results)
+    notes_by_node = views.clade_notes_by_node(atlas, results)
+    tree = results.tree
+    labels, hrefs = [], []
+    withheld = set()
+    for v, nid in enumerate(results.ids):
+        if tree.tip[v] >= 0:
+            obj = atlas.objects[nid]
+            labels.append(obj.title if not obj.withheld else "Withheld")
+            hrefs.append(links.objects[nid])
+            if obj.withheld:
+                withheld.add(v)
+        else:
+            labels.append(views.node_title(atlas, results, v, notes_by_node))
+            hrefs.append(links.nodes[nid])
+    layout, use_lengths = tree_layout(tree, results.ids, labels, hrefs, results.summary.support,
+                                      withheld)
+
+    pages: list[PagePlan] = [
+        overview.home_page(atlas, results, links, notes_by_node),
+        overview.tree_page(atlas, results, links, notes_by_node, use_lengths),
+        overview.map_page(atlas, results, links),
+        views.glossary_page(atlas, results, links),
+        overview.methods_page(atlas, results, links),
+        overview.credits_page(atlas, links),
+    ]
+    for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):
+        pages.append(views.object_page(atlas, results, links, layout, obj, notes_by_node))
+    for v, nid in enumerate(results.ids):
+        if tree.tip[v] < 0:
+            pages.append(views.node_page(atlas, results, links, layout, v, notes_by_node))
+    for c in atlas.characters:
+        pages.append(views.character_page(atlas, results, links, c, notes_by_node))
+    for pid in sorted(atlas.places):
+        pages.append(overview.place_page(atlas, results, links, pid))
+    for page in atlas.pages:
+        pages.append(overview.free_page(atlas, links, page))
+
+    data = {
+        "data/tree.js": js_global("tree", overview.layout_data(
+            layout, use_lengths, atlas.config.analysis["outgroup"])),
+        "data/places.js": js_global("places", places_data(atlas, links, results)),
+        "data/world.js": world_js(),
+        "data/basemap.js": js_global("basemap", atlas.basemap),
+    }
+    # Only media that a published page shows are copied: restricted images never leave.
+    shown = {im.file for o in atlas.visible_objects() for im in o.images}
+    shown |= {c.image.file for c in atlas.characters if c.image is not None}
+    copies = {f"media/{name}": atlas.media[name] for name in sorted(shown)}
+    copies["assets/plotly.min.js"] = plotly_js()
+    files = {"figures/tree.svg": tree_svg(layout, "../", title=f"Lineage tree of "
+                                          f"{atlas.config.title}", standalone=True)}
+    nav = [("Lineage tree", "tree.html"), ("Distribution map", "map.html"),
+           ("Glossary", "glossary.html"), ("Methods", "methods.html")]
+    nav += [(p.title, links.pages[p.name]) for p in atlas.pages]
+    return SitePlan(pages, data, copies, files, links, nav)

@@ -1,0 +1,88 @@
+"""The render stage: page contexts through one Jinja environment into HTML text.
+
+Autoescape is on for every template and undefined names are errors (StrictUndefined), so a
+template can neither show raw input nor silently print nothing for a misspelt variable.
+A theme is a folder with ``templates/`` and ``assets/``; a theme may name a parent in
+``theme.toml`` (``extends = "default"``) and override only what it changes.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+
+import jinja2
+
+from ..errors import AtlasError, Problem
+from .plan import SitePlan
+from .views import PagePlan, root_of
+
+
+@dataclass(frozen=True)
+class Theme:
+    name: str
+    folders: tuple[Path, ...]  # the theme first, then the themes it extends
+
+    @property
+    def asset_folders(self) -> tuple[Path, ...]:
+        return tuple(f / "assets" for f in self.folders)
+
+
+def find_theme(name: str) -> Theme:
+    base = Path(str(resources.files("atlas.themes")))
+    folders: list[Path] = []
+    current = name
+    while current:
+        folder = base / current
+        if not (folder / "templates").is_dir():
+            known = sorted(p.name for p in base.iterdir() if (p / "templates").is_dir())
+            raise AtlasError(Problem("atlas.toml", None, f"no theme named {current!r}",
+                                     "known themes: " + ", ".join(known)))
+        if folder in folders:
+            break
+        folders.append(folder)
+        meta = folder / "theme.toml"
+        current = tomllib.loads(meta.read_text("utf-8")).get("extends", "") if meta.is_file() \
+            else ""
+    return Theme(name, tuple(folders))
+
+
+def environment(theme: Theme) -> jinja2.Environment:
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader([str(f / "templates") for f in theme.folders]),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    return env
+
+
+@dataclass(frozen=True)
+class SiteInfo:
+    title: str
+    licence: str
+    nav: list[tuple[str, str]]
+    kiosk: bool
+    idle_seconds: int
+    language: str
+    generator: str
+
+
+def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
+    root = root_of(page.path)
+    template = env.get_template(page.template)
+    return template.render(
+        page=page.context, root=root, site=site, path=page.path,
+        scripts=[root + s for s in page.scripts],
+        nav=[{"label": label, "href": root + href, "current": href == page.path}
+             for label, href in site.nav],
+    )
+
+
+def render_site(plan: SitePlan, theme: Theme, site: SiteInfo) -> dict[str, str]:
+    env = environment(theme)
+    return {page.path: render_page(env, page, site) for page in plan.pages}

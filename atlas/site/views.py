@@ -1,0 +1,410 @@
+"""Page contexts: one plain function per page type, computing everything its template shows.
+
+Templates only format. Each ``*_page`` function takes the linked atlas, the analysis results
+and the site's shared :class:`Links`, and returns a :class:`PagePlan` whose ``context`` is
+plain data (strings, numbers, lists, dicts), so tests can call it and inspect what a page will
+say without rendering anything.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..link import slug
+from ..model import ArtObject, Atlas, Character
+from ..analysis.results import Results
+from .figures import LayoutNode, neighbourhood, tree_svg
+from .markdown import Targets, plain_text, render_markdown
+
+UNCERTAIN = 0.7  # a reconstruction whose most probable state has less than this is "uncertain"
+REFERENCES = {
+    "fitch": "Fitch, W. M. (1971). Toward defining the course of evolution: minimum change for a "
+             "specific tree topology. Systematic Zoology 20: 406-416.",
+    "farris": "Farris, J. S. (1989). The retention index and the rescaled consistency index. "
+              "Cladistics 5: 417-419.",
+    "kluge": "Kluge, A. G. & Farris, J. S. (1969). Quantitative phyletics and the evolution of "
+             "anurans. Systematic Zoology 18: 1-32.",
+    "lewis": "Lewis, P. O. (2001). A likelihood approach to estimating phylogeny from discrete "
+             "morphological character data. Systematic Biology 50: 913-925.",
+    "yang": "Yang, Z. (1994). Maximum likelihood phylogenetic estimation from DNA sequences with "
+            "variable rates over sites: approximate methods. Journal of Molecular Evolution 39: "
+            "306-314.",
+    "minin": "Minin, V. N. & Suchard, M. A. (2008). Counting labeled transitions in "
+             "continuous-time Markov models of evolution. Journal of Mathematical Biology 56: "
+             "391-412.",
+    "margush": "Margush, T. & McMorris, F. R. (1981). Consensus n-trees. Bulletin of "
+               "Mathematical Biology 43: 239-244.",
+}
+
+
+@dataclass(frozen=True)
+class PagePlan:
+    path: str  # output path, e.g. "objects/lamp-03.html"
+    template: str
+    context: dict
+    scripts: tuple[str, ...] = ()  # site-root-relative script paths, in load order
+
+
+def root_of(path: str) -> str:
+    """The relative prefix from a page to the site root: ``""`` or ``"../"``."""
+    return "../" * path.count("/")
+
+
+def fmt(value: float | None, digits: int = 2) -> str:
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return "–"
+    return f"{value:.{digits}f}"
+
+
+@dataclass(frozen=True)
+class Links:
+    """Where everything lives in the site, computed once."""
+
+    objects: dict[str, str]  # object id -> "objects/<slug>.html" ("" when withheld)
+    characters: dict[str, str]
+    places: dict[str, str]
+    nodes: dict[str, str]  # node id -> "nodes/<id>.html"
+    pages: dict[str, str]
+    targets: Targets = field(default=Targets({}, frozenset()))
+
+
+def _unique_slugs(ids) -> dict[str, str]:
+    out: dict[str, str] = {}
+    used: set[str] = set()
+    for i in ids:
+        base = slug(i)
+        s, n = base, 2
+        while s.lower() in used:
+            s, n = f"{base}-{n}", n + 1
+        used.add(s.lower())
+        out[i] = s
+    return out
+
+
+def make_links(atlas: Atlas, results: Results) -> Links:
+    objects = {oid: (f"objects/{s}.html" if not atlas.objects[oid].withheld else "")
+               for oid, s in _unique_slugs(sorted(atlas.objects)).items()}
+    characters = {cid: f"characters/{s}.html"
+                  for cid, s in _unique_slugs([c.id for c in atlas.characters]).items()}
+    places = {pid: f"places/{s}.html" for pid, s in _unique_slugs(sorted(atlas.places)).items()}
+    nodes = {nid: f"nodes/{nid}.html" for v, nid in enumerate(results.ids)
+             if results.tree.tip[v] < 0}
+    pages = {p.name: f"pages/{p.name}.html" for p in atlas.pages}
+    stem = lambda m: {k: v.rsplit("/", 1)[1][:-5] for k, v in m.items() if v}  # noqa: E731
+    targets = Targets(
+        {"object": stem(objects), "character": stem(characters), "place": stem(places),
+         "node": stem(nodes), "page": stem(pages)},
+        frozenset(atlas.media),
+    )
+    return Links(objects, characters, places, nodes, pages, targets)
+
+
+# --- shared pieces ------------------------------------------------------------------------
+
+def node_title(atlas: Atlas, results: Results, v: int, notes_by_node: dict[int, list]) -> str:
+    tree = results.tree
+    if tree.tip[v] >= 0:
+        return atlas.objects[results.ids[v]].title
+    if notes_by_node.get(v):
+        return notes_by_node[v][0].title
+    n = len(results.members[v])
+    return "Root of the tree" if v == tree.root else f"Clade of {n} objects"
+
+
+def clade_notes_by_node(atlas: Atlas, results: Results) -> dict[int, list]:
+    """Each clade note at the most recent common ancestor of its members in the summary tree."""
+    tree = results.tree
+    index = {t: i for i, t in enumerate(tree.taxa)}
+    masks = [sum(1 << index[m] for m in mem) for mem in results.members]
+    out: dict[int, list] = defaultdict(list)
+    for note in atlas.clade_notes:
+        want = sum(1 << index[m] for m in note.members)
+        # The smallest clade containing every member: postorder finds it first.
+        for v in range(tree.n_nodes):
+            if masks[v] & want == want:
+                out[v].append(note)
+                break
+    return dict(out)
+
+
+def _member_chips(atlas: Atlas, links: Links, root: str, members) -> list[dict]:
+    chips = []
+    for m in members:
+        obj = atlas.objects[m]
+        chips.append({"label": obj.title if not obj.withheld else "Withheld object",
+                      "href": root + links.objects[m] if links.objects[m] else "",
+                      "id": "" if obj.withheld else m})
+    return chips
+
+
+def _state_text(c: Character, cell: str) -> tuple[str, str]:
+    """(symbol, description) of a matrix cell as a reader should see it."""
+    if cell in ("", "?"):
+        return "?", "unknown"
+    if cell == "-":
+        return "-", "not applicable"
+    parts = cell.split("/")
+    return cell, " or ".join(c.describe(p) for p in parts)
+
+
+def _symbols_of(c: Character, mask: int) -> str:
+    return "/".join(s for k, s in enumerate(c.symbols) if mask >> k & 1) or "?"
+
+
+def _layout_highlight(layout: list[LayoutNode], v: int) -> set[int]:
+    path = set()
+    while v >= 0:
+        path.add(v)
+        v = layout[v].parent
+    return path
+
+
+# --- page builders ------------------------------------------------------------------------
+
+def object_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutNode],
+                obj: ArtObject, notes_by_node) -> PagePlan:
+    path = links.objects[obj.id]
+    root = root_of(path)
+    v = results.ids.index(obj.id)
+    tree = results.tree
+    place = atlas.places.get(obj.place) if obj.place else None
+    facts = [("Object id", obj.id)]
+    if obj.community:
+        facts.append(("Community", obj.community))
+    if obj.period:
+        facts.append(("Period", obj.period))
+    location = {"kind": "none", "text": "No place recorded", "href": ""}
+    if place is not None:
+        if place.precision == "withheld" or not place.has_coordinates:
+            text = "Location withheld" if place.precision == "withheld" else "No coordinates"
+            location = {"kind": "withheld", "text": f"{place.name}: {text.lower()}",
+                        "href": root + links.places[place.id]}
+        else:
+            where = f"{place.name} ({fmt(place.lat, 4)}, {fmt(place.lon, 4)})"
+            if place.precision == "generalised":
+                where = f"{place.name} (shown on a 1° grid to protect the find-spot)"
+            location = {"kind": place.precision, "text": where,
+                        "href": root + links.places[place.id]}
+    elif obj.place_withheld:
+        location = {"kind": "withheld", "text": "Location withheld", "href": ""}
+    # Traits as coded, by group.
+    cells = atlas.cells[obj.taxon]
+    groups: dict[str, list[dict]] = defaultdict(list)
+    for j, c in enumerate(atlas.characters):
+        cell = cells[j] if cells else ""
+        symbol, description = (cell or "?", "unknown") if c.kind == "continuous" and cell in (
+            "", "?", "-") else ((cell, cell) if c.kind == "continuous" else _state_text(c, cell))
+        groups[c.group].append({"label": c.label, "href": root + links.characters[c.id],
+                                "symbol": symbol, "description": description,
+                                "unknown": symbol in ("?", "-")})
+    # The lineage: every ancestor from the root down.
+    ancestors = []
+    p = int(tree.parent[v])
+    while p >= 0:
+        ancestors.append({"title": node_title(atlas, results, p, notes_by_node),
+                          "href": root + links.nodes[results.ids[p]],
+                          "support": fmt(results.summary.support[p])})
+        p = int(tree.parent[p])
+    ancestors.reverse()
+    parent = int(tree.parent[v])
+    local = neighbourhood(layout, parent if parent >= 0 else v)
+    focus = next(n.index for n in local if n.id == obj.id)
+    svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
+                   title=f"Where {obj.title} stands among its closest relatives")
+    images = [{"src": root + "media/" + im.file, "alt": im.alt, "credit": im.credit,
+               "licence": im.licence, "caption": im.caption} for im in obj.images]
+    return PagePlan(path, "object.html", {
+        "kind": "object", "title": obj.title, "object": {"id": obj.id, "title": obj.title},
+        "facts": facts, "location": location, "images": images,
+        "body": render_markdown(obj.body, root, links.targets),
+        "has_note": obj.has_note, "has_row": obj.has_row,
+        "groups": [{"name": g, "rows": rows} for g, rows in groups.items()],
+        "ancestors": ancestors, "svg": svg,
+        "sources": list(obj.sources),
+        "breadcrumbs": [("Lineage tree", root + "tree.html")],
+    })
+
+
+def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutNode], v: int,
+              notes_by_node) -> PagePlan:
+    tree = results.tree
+    nid = results.ids[v]
+    path = links.nodes[nid]
+    root = root_of(path)
+    support = results.summary.support[v]
+    count = int(results.summary.count[v])
+    n_trees = results.summary.n_trees
+    title = node_title(atlas, results, v, notes_by_node)
+    facts = [
+        ("Node id", nid),
+        ("Posterior probability (clade support)", fmt(support)),
+        ("Sampled trees with this clade", f"{count} of {n_trees}"),
+        ("Objects in the clade", str(len(results.members[v]))),
+    ]
+    if results.fit is not None:
+        facts.append(("Reconstruction averaged over", f"{int(results.prob_trees[v])} sampled trees"))
+    parent = int(tree.parent[v])
+    up = None
+    if parent >= 0:
+        up = {"title": node_title(atlas, results, parent, notes_by_node),
+              "href": root + links.nodes[results.ids[parent]]}
+    children = []
+    for c in tree.children(v).tolist():
+        cid = results.ids[c]
+        if tree.tip[c] >= 0:
+            obj = atlas.objects[cid]
+            href = links.objects[cid]
+            children.append({"title": obj.title if not obj.withheld else "Withheld object",
+                             "href": root + href if href else "", "kind": "object",
+                             "support": ""})
+        else:
+            children.append({"title": node_title(atlas, results, c, notes_by_node),
+                             "href": root + links.nodes[cid], "kind": "clade",
+                             "support": fmt(results.summary.support[c])})
+    groups = _reconstruction(atlas, results, links, v, root)
+    stem = _stem_changes(atlas, results, links, v, root)
+    notes = [{"title": n.title, "body": render_markdown(n.body, root, links.targets)}
+             for n in notes_by_node.get(v, [])]
+    local = neighbourhood(layout, v)
+    focus = next(n.index for n in local if n.id == nid)
+    svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
+                   title=f"The clade below {title}")
+    places = sorted({atlas.objects[m].place for m in results.members[v]
+                     if atlas.objects[m].place and atlas.objects[m].place in atlas.places})
+    return PagePlan(path, "node.html", {
+        "kind": "node", "title": title, "node_id": nid, "facts": facts, "up": up,
+        "children": children,
+        "members": _member_chips(atlas, links, root, results.members[v]),
+        "groups": groups, "stem": stem, "notes": notes, "svg": svg,
+        "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
+                   for p in places],
+        "breadcrumbs": [("Lineage tree", root + "tree.html")],
+        "uncertain_threshold": fmt(UNCERTAIN),
+    })
+
+
+def _reconstruction(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
+    groups: dict[str, list[dict]] = defaultdict(list)
+    pars = results.parsimony.states
+    for c in atlas.discrete:
+        j = c.column
+        probs = results.probs[v, j, : len(c.symbols)] if results.fit is not None else None
+        states = []
+        if probs is not None:
+            order = np.argsort(-probs, kind="stable")
+            for k in order.tolist():
+                states.append({"symbol": c.symbols[k], "description": c.descriptions[k],
+                               "p": fmt(float(probs[k])), "width": f"{100 * float(probs[k]):.0f}"})
+            best = float(probs.max())
+        else:
+            best = 1.0
+        groups[c.group].append({
+            "label": c.label, "href": root + links.characters[c.id], "states": states,
+            "parsimony": _symbols_of(c, int(pars[v, j])), "certainty": best,
+            "uncertain": best < UNCERTAIN,
+        })
+    for rows in groups.values():
+        rows.sort(key=lambda r: -r["certainty"])
+    return [{"name": g, "rows": rows} for g, rows in groups.items()]
+
+
+def _stem_changes(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
+    """Expected changes on the branch above a node, largest first (at least 0.5 expected)."""
+    if results.changes is None or int(results.tree.parent[v]) < 0:
+        return []
+    out = []
+    for c in atlas.discrete:
+        j = c.column
+        total = float(results.changes.total[v, j])
+        if total < 0.5:
+            continue
+        gain = results.changes.gains[v, j]
+        loss = results.changes.losses[v, j]
+        out.append({"label": c.label, "href": root + links.characters[c.id],
+                    "total": fmt(total), "gain": fmt(float(gain)) if np.isfinite(gain) else "",
+                    "loss": fmt(float(loss)) if np.isfinite(loss) else "", "sort": -total})
+    out.sort(key=lambda r: (r["sort"], r["label"]))
+    return out
+
+
+def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
+                   notes_by_node) -> PagePlan:
+    path = links.characters[c.id]
+    root = root_of(path)
+    j = atlas.characters.index(c)
+    by_state: dict[str, list] = defaultdict(list)
+    for obj in sorted(atlas.objects.values(), key=lambda o: o.id):
+        cells = atlas.cells[obj.taxon]
+        cell = cells[j] if cells else "?"
+        key = cell or "?"
+        by_state[key].append(obj)
+    states = []
+    if c.kind == "discrete":
+        for k, s in enumerate(c.symbols):
+            members = [o for key, objs in by_state.items() for o in objs
+                       if s in key.split("/")]
+            states.append({"symbol": s, "description": c.descriptions[k],
+                           "count": len(members),
+                           "objects": _member_chips(atlas, links, root, [o.id for o in members])})
+    unknown = by_state.get("?", []) + by_state.get("-", [])
+    facts = [("Character id", c.id), ("Group", c.group),
+             ("Kind", "measurement (continuous)" if c.kind == "continuous" else
+              ("ordered states" if c.ordered else "unordered states"))]
+    changes = []
+    if c.kind == "discrete":
+        par = results.parsimony
+        facts.append(("Steps on the summary tree (parsimony)", str(int(par.steps[c.column]))))
+        for name, attr in (("Consistency index (CI)", "ci"), ("Retention index (RI)", "ri")):
+            values = getattr(par, attr, None)
+            if values is not None:
+                facts.append((name, fmt(float(values[c.column]))))
+        if results.changes is not None:
+            tree = results.tree
+            total = results.changes.total[:, c.column]
+            facts.append(("Expected changes on the summary tree (likelihood)",
+                          fmt(float(total.sum()))))
+            for v in np.argsort(-total, kind="stable").tolist():
+                if total[v] < 0.5 or int(tree.parent[v]) < 0:
+                    continue
+                nid = results.ids[v]
+                href = links.nodes.get(nid) or links.objects.get(nid) or ""
+                changes.append({"title": node_title(atlas, results, v, notes_by_node),
+                                "href": root + href if href else "", "total": fmt(float(total[v])),
+                                "gain": fmt(float(results.changes.gains[v, c.column])),
+                                "loss": fmt(float(results.changes.losses[v, c.column]))})
+    image = None
+    if c.image is not None:
+        image = {"src": root + "media/" + c.image.file, "alt": c.image.alt,
+                 "credit": c.image.credit, "licence": c.image.licence}
+    return PagePlan(path, "character.html", {
+        "kind": "character", "title": c.label, "facts": facts, "states": states,
+        "unknown": _member_chips(atlas, links, root, [o.id for o in unknown]),
+        "body": render_markdown(c.body, root, links.targets), "image": image,
+        "changes": changes, "binary": len(c.symbols) == 2,
+        "breadcrumbs": [("Glossary", root + "glossary.html")],
+    })
+
+
+def glossary_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
+    groups: dict[str, list[dict]] = defaultdict(list)
+    par = results.parsimony
+    ci = getattr(par, "ci", None)
+    for c in atlas.characters:
+        row = {"id": c.id, "label": c.label, "href": links.characters[c.id],
+               "states": [{"symbol": s, "description": d}
+                          for s, d in zip(c.symbols, c.descriptions)],
+               "steps": "", "ci": ""}
+        if c.kind == "discrete":
+            row["steps"] = str(int(par.steps[c.column]))
+            row["ci"] = fmt(float(ci[c.column])) if ci is not None else ""
+        groups[c.group].append(row)
+    return PagePlan("glossary.html", "glossary.html", {
+        "kind": "glossary", "title": "Glossary",
+        "groups": [{"name": g, "slug": slug(g).lower(), "rows": rows}
+                   for g, rows in groups.items()],
+        "n_characters": len(atlas.characters),
+    })

@@ -1,0 +1,115 @@
+"""End to end: a source folder in, a complete, linked, offline, deterministic site out."""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from pathlib import Path
+
+import pytest
+
+from atlas.audit import audit_links
+from atlas.build import build
+from atlas.errors import AtlasError
+
+from .conftest import write_atlas
+
+
+def tree_digest(folder: Path) -> dict[str, str]:
+    return {p.relative_to(folder).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def test_starter_builds_every_page_type(starter, tmp_path):
+    out = tmp_path / "site"
+    report = build(starter, out)
+    pages = sorted(p.relative_to(out).as_posix() for p in out.rglob("*.html"))
+    for top in ("index.html", "tree.html", "map.html", "glossary.html", "methods.html",
+                "credits.html", "pages/about.html"):
+        assert top in pages
+    # one page per tip, per character, per place and per internal node of the summary tree
+    assert len([p for p in pages if p.startswith("objects/")]) == 6
+    assert len([p for p in pages if p.startswith("characters/")]) == 4
+    assert len([p for p in pages if p.startswith("places/")]) == 3
+    nodes = [p for p in pages if p.startswith("nodes/")]
+    assert all(re.fullmatch(r"nodes/n-[0-9a-f]{10}\.html", p) for p in nodes)
+    assert len(nodes) == 5  # 6 tips, root + 4 clades in the consensus (see test_link)
+    assert report.pages == len(pages)
+    for name in ("data/tree.js", "data/places.js", "data/world.js", "assets/plotly.min.js"):
+        assert (out / name).is_file()
+
+
+def test_every_internal_link_resolves_and_nothing_loads_from_outside(starter, tmp_path):
+    out = tmp_path / "site"
+    build(starter, out)
+    files = {p.relative_to(out).as_posix(): p.read_bytes() for p in out.rglob("*") if p.is_file()}
+    assert audit_links(files) == []
+    for name, data in files.items():
+        if name.endswith(".html"):
+            text = data.decode()
+            assert not re.search(r"""(src|href)=["'](https?:)?//""", text), name
+            assert "<script>" not in text and " on" + "click=" not in text
+            assert "Content-Security-Policy" in text
+
+
+def test_audit_catches_a_planted_broken_link_and_anchor():
+    page = b'<a href="objects/missing.html">x</a><a href="#nowhere">y</a><img src="//evil/x.png">'
+    problems = audit_links({"index.html": page})
+    messages = [p.message for p in problems]
+    assert any("broken link" in m for m in messages)
+    assert any("broken anchor" in m for m in messages)
+    assert any("from outside the site" in m for m in messages)
+
+
+def test_a_note_with_a_broken_atlas_link_fails_the_build(starter_files, tmp_path):
+    files = dict(starter_files)
+    files["pages/about.md"] += "\nSee [a spoon that is not there](object:spoon-zz).\n"
+    root = write_atlas(tmp_path / "a", files)
+    with pytest.raises(AtlasError) as info:
+        build(root, tmp_path / "out")
+    assert info.value.problems[0].file == "pages/about.html"
+    assert "spoon-zz" in info.value.problems[0].message
+    report = build(root, tmp_path / "out", links="warn")
+    assert any("spoon-zz" in w.message for w in report.warnings)
+
+
+def test_two_builds_are_byte_identical(starter, tmp_path):
+    build(starter, tmp_path / "one")
+    build(starter, tmp_path / "two")
+    assert tree_digest(tmp_path / "one") == tree_digest(tmp_path / "two")
+
+
+def test_a_failed_build_leaves_the_earlier_build_untouched(starter, tmp_path):
+    out = tmp_path / "site"
+    build(starter, out)
+    before = tree_digest(out)
+    (starter / "matrix.csv").write_text("object,bowl\nspoon-a,0\nspoon-a,1\n", encoding="utf-8")
+    with pytest.raises(AtlasError):
+        build(starter, out)
+    assert tree_digest(out) == before
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".site.atlas")]
+
+
+def test_output_folder_safety(starter, tmp_path):
+    with pytest.raises(AtlasError, match="contains the atlas source"):
+        build(starter, starter.parent)
+    precious = tmp_path / "precious"
+    precious.mkdir()
+    (precious / "thesis.docx").write_text("years of work")
+    with pytest.raises(AtlasError, match="not an earlier atlas build"):
+        build(starter, precious)
+    assert (precious / "thesis.docx").read_text() == "years of work"
+
+
+def test_markdown_is_sanitised_and_fields_are_escaped(starter_files, tmp_path):
+    files = dict(starter_files)
+    files["objects/spoon-d.md"] = (
+        '---\nid: spoon-d\ntitle: "<script>window.pwned=1</script>Spoon"\nplace: calder-end\n'
+        '---\n<img src=x onerror="window.pwned=1"> <a href="javascript:alert(1)">j</a>\n'
+        '<iframe src="https://example.org"></iframe>\n')
+    out = tmp_path / "site"
+    build(write_atlas(tmp_path / "a", files), out, links="warn")
+    html = (out / "objects/spoon-d.html").read_text()
+    assert "<script>window.pwned" not in html
+    assert "&lt;script&gt;window.pwned=1&lt;/script&gt;Spoon" in html
+    assert "onerror" not in html and "javascript:" not in html and "<iframe" not in html

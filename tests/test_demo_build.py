@@ -1,0 +1,87 @@
+"""The demo atlas builds end to end: every page type, links resolve, deterministic output."""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from pathlib import Path
+
+import pytest
+
+from atlas.audit import audit_links
+from atlas.build import build, load
+
+
+@pytest.fixture(scope="module")
+def demo_site(demo_copy, tmp_path_factory) -> tuple[Path, object]:
+    out = tmp_path_factory.mktemp("demo-site") / "build"
+    report = build(demo_copy, out)
+    return out, report
+
+
+def _digest(folder: Path) -> dict[str, str]:
+    return {p.relative_to(folder).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def test_page_counts_follow_the_sources(demo_copy, demo_site):
+    out, report = demo_site
+    atlas = load(demo_copy)
+    visible = atlas.visible_objects()
+    withheld = [o for o in atlas.objects.values() if o.withheld]
+    assert withheld, "the demo has objects that the public profile withholds"
+    count = lambda folder: len(list((out / folder).glob("*.html")))  # noqa: E731
+    assert count("objects") == len(visible)
+    assert count("characters") == len(atlas.characters) >= 40
+    assert count("places") == len(atlas.places) >= 8
+    assert count("pages") == len(atlas.pages) >= 2
+    assert count("nodes") >= 3
+    for top in ("index.html", "tree.html", "map.html", "glossary.html", "methods.html",
+                "credits.html"):
+        assert (out / top).is_file()
+    assert report.pages == len(list(out.rglob("*.html")))
+
+
+def test_withheld_objects_have_no_page_and_no_name(demo_copy, demo_site):
+    out, _ = demo_site
+    atlas = load(demo_copy, "community")
+    public = load(demo_copy, "public")
+    for oid, obj in public.objects.items():
+        if not obj.withheld:
+            continue
+        assert not (out / "objects" / f"{oid}.html").exists()
+        title = atlas.objects[oid].title  # the name the community profile would show
+        if title == oid:
+            continue
+        for path in out.rglob("*"):
+            if path.is_file() and path.suffix in (".html", ".js", ".svg"):
+                assert title not in path.read_text(encoding="utf-8"), path
+
+
+def test_links_resolve_and_the_build_is_deterministic(demo_copy, demo_site, tmp_path):
+    out, _ = demo_site
+    files = {p.relative_to(out).as_posix(): p.read_bytes() for p in out.rglob("*") if p.is_file()}
+    assert audit_links(files) == []
+    build(demo_copy, tmp_path / "again")
+    assert _digest(tmp_path / "again") == _digest(out)
+
+
+def test_every_page_links_to_every_page_type(demo_site):
+    out, _ = demo_site
+    home = (out / "index.html").read_text(encoding="utf-8")
+    for target in ("tree.html", "map.html", "glossary.html", "methods.html"):
+        assert f'href="{target}"' in home
+    obj = next((out / "objects").glob("*.html")).read_text(encoding="utf-8")
+    assert re.search(r'href="\.\./nodes/n-[0-9a-f]{10}\.html"', obj)
+    assert re.search(r'href="\.\./characters/[^"]+\.html"', obj)
+    node = next((out / "nodes").glob("*.html")).read_text(encoding="utf-8")
+    assert 'href="../objects/' in node and 'href="../characters/' in node
+    tree = (out / "tree.html").read_text(encoding="utf-8")
+    assert 'href="objects/' in tree and 'href="nodes/' in tree
+
+
+def test_the_about_page_says_the_scenario_is_invented(demo_site):
+    out, _ = demo_site
+    about = (out / "pages" / "about.html").read_text(encoding="utf-8").lower()
+    assert "invented" in about
+    assert "loot" in about
