@@ -137,6 +137,8 @@ def place_page(atlas: Atlas, results: Results, links: Links, pid: str) -> PagePl
         facts.append((f"Name ({lang})", name))
     return PagePlan(path, "place.html", {
         "kind": "place", "title": place.name, "facts": facts, "place_id": pid,
+        "static_map": f"figures/places/{path.rsplit('/', 1)[1][:-5]}.svg"
+        if place.has_coordinates and place.precision != "withheld" else "",
         "precision": place.precision, "mapped": place.has_coordinates,
         "objects": [{"title": o.title, "href": root + links.objects[o.id],
                      "period": o.period, "community": o.community}

@@ -14,6 +14,7 @@ from ..analysis.results import Results
 from ..model import Atlas
 from . import overview, views
 from .figures import tree_layout, tree_svg
+from .mapsvg import land_paths, map_svg
 from .views import Links, PagePlan
 
 
@@ -68,6 +69,44 @@ def places_data(atlas: Atlas, links: Links, results: Results) -> list[dict]:
     return out
 
 
+def basemap_rings(basemap: dict | None) -> list:
+    """Exterior rings (lon, lat) of a regional basemap's polygons, for the static maps."""
+    rings = []
+    for feature in (basemap or {}).get("features", []):
+        geometry = (feature or {}).get("geometry") or {}
+        polygons = {"Polygon": [geometry.get("coordinates")],
+                    "MultiPolygon": geometry.get("coordinates")}.get(geometry.get("type"), [])
+        for polygon in polygons or []:
+            if polygon and polygon[0]:
+                rings.append([(float(x), float(y)) for x, y, *_ in polygon[0]])
+    return rings
+
+
+def static_maps(atlas: Atlas, links: Links, places: list[dict]) -> dict[str, str]:
+    """SVG maps for print and for readers without JavaScript: all places, and each place."""
+    world = json.loads(resources.files("atlas.basemaps").joinpath("world_110m.json")
+                       .read_text("utf-8"))
+    land = land_paths(world)
+    region = basemap_rings(atlas.basemap)
+    points = [{"lat": p["lat"], "lon": p["lon"], "label": f"{p['name']} ({len(p['objects'])})",
+               "href": "../" + p["href"], "count": max(len(p["objects"]), 1),
+               "precision": p["precision"]} for p in places]
+    files = {"figures/map.svg": map_svg(points, rings=land, extra_polygons=region,
+                                        title=f"Distribution map of {atlas.config.title}")}
+    if points:
+        lats = [p["lat"] for p in points]
+        lons = [p["lon"] for p in points]
+        pad = 1.5
+        bounds = (min(lons) - pad, min(lats) - pad, max(lons) + pad, max(lats) + pad)
+        for point, place in zip(points, places):
+            name = links.places[place["id"]].rsplit("/", 1)[1][:-5]
+            files[f"figures/places/{name}.svg"] = map_svg(
+                [{**point, "href": "../../" + place["href"]}], rings=land,
+                extra_polygons=region, bounds=bounds, width=480,
+                title=f"Where {place['name']} lies in the study area", svg_id="place-map")
+    return files
+
+
 def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     links = views.make_links(atlas, results)
     notes_by_node = views.clade_notes_by_node(atlas, results)
@@ -107,10 +146,11 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     for page in atlas.pages:
         pages.append(overview.free_page(atlas, links, page))
 
+    mapped = places_data(atlas, links, results)
     data = {
         "data/tree.js": js_global("tree", overview.layout_data(
             layout, use_lengths, atlas.config.analysis["outgroup"])),
-        "data/places.js": js_global("places", places_data(atlas, links, results)),
+        "data/places.js": js_global("places", mapped),
         "data/world.js": world_js(),
         "data/basemap.js": js_global("basemap", atlas.basemap),
     }
@@ -121,6 +161,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     copies["assets/plotly.min.js"] = plotly_js()
     files = {"figures/tree.svg": tree_svg(layout, "../", title=f"Lineage tree of "
                                           f"{atlas.config.title}", standalone=True)}
+    files.update(static_maps(atlas, links, mapped))
     nav = [("Lineage tree", "tree.html"), ("Distribution map", "map.html"),
            ("Glossary", "glossary.html"), ("Methods", "methods.html")]
     nav += [(p.title, links.pages[p.name]) for p in atlas.pages]
