@@ -12,7 +12,8 @@ from ..analysis.results import Results
 from ..model import Atlas
 from .figures import LayoutNode
 from .markdown import plain_text, render_markdown
-from .views import REFERENCES, Links, PagePlan, fmt, node_title, root_of
+from .views import (REFERENCES, Links, PagePlan, borrowing_rows, fmt, node_title, root_of,
+                    violation_text)
 
 PLOT_SCRIPTS = ("assets/plotly.min.js",)
 TREE_SCRIPTS = (*PLOT_SCRIPTS, "data/tree.js", "assets/tree.js")
@@ -147,7 +148,46 @@ def place_page(atlas: Atlas, results: Results, links: Links, pid: str) -> PagePl
     }, scripts=MAP_SCRIPTS if place.has_coordinates else ())
 
 
-def methods_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
+def _diagnostics(atlas: Atlas, results: Results, links: Links, notes_by_node) -> dict:
+    diag = results.diagnostics
+    by_taxon = {o.taxon: o for o in atlas.objects.values()}
+    top = []
+    if diag.delta is not None:
+        for k in np.argsort(-diag.delta.delta, kind="stable").tolist():
+            obj = by_taxon[diag.delta_taxa[k]]
+            if obj.withheld:
+                continue
+            top.append({"title": obj.title, "href": links.objects[obj.id],
+                        "delta": fmt(float(diag.delta.delta[k]), 3),
+                        "q": fmt(float(diag.delta.q_residual[k]), 4)})
+            if len(top) == 8:
+                break
+    facts = []
+    if diag.delta is not None:
+        facts += [("Mean delta score", fmt(diag.delta.mean_delta, 3)),
+                  ("Mean Q-residual", fmt(diag.delta.mean_q_residual, 4)),
+                  ("Quartets", f"{diag.delta.n_quartets:,}"
+                   + (" (a seeded sample)" if diag.delta.sampled else " (all)"))]
+    if diag.mantel is not None:
+        facts += [("Mantel r, geographic against patristic distance", fmt(diag.mantel.r, 3)),
+                  ("Mantel p", f"{diag.mantel.p:.3f} ({diag.mantel.permutations} permutations,"
+                               f" {diag.mantel.n} objects with coordinates)")]
+    tips = results.tree.tip >= 0
+    if diag.from_root is not None:
+        values = diag.from_root[tips]
+        facts += [("Expected changes from the root to an object",
+                   f"median {np.median(values):.2f}, range {values.min():.2f} to "
+                   f"{values.max():.2f}")]
+    violations = []
+    for x in diag.violations:
+        violations.append({"title": node_title(atlas, results, x.node, notes_by_node),
+                           "href": links.nodes[results.ids[x.node]],
+                           "text": violation_text(atlas, x)})
+    return {"facts": facts, "top": top, "violations": violations,
+            "borrowing": borrowing_rows(atlas, results, links, "", notes_by_node)}
+
+
+def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> PagePlan:
     sample = atlas.sample
     analysis = atlas.config.analysis
     n_taxa = len(atlas.taxa)
@@ -215,8 +255,9 @@ def methods_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
         "kind": "methods", "title": "Methods", "paragraph": paragraph, "data": data,
         "trees": trees, "parsimony": parsimony, "model": model,
         "references": [REFERENCES[k] for k in ("margush", "fitch", "kluge", "farris", "lewis",
-                                               "yang", "minin")],
+                                               "yang", "minin", "holland", "gray", "mantel")],
         "gaps": _gaps(atlas, links),
+        "diagnostics": _diagnostics(atlas, results, links, notes_by_node),
     })
 
 

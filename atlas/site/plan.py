@@ -131,7 +131,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         overview.tree_page(atlas, results, links, notes_by_node, use_lengths),
         overview.map_page(atlas, results, links),
         views.glossary_page(atlas, results, links),
-        overview.methods_page(atlas, results, links),
+        overview.methods_page(atlas, results, links, notes_by_node),
         overview.credits_page(atlas, links),
     ]
     for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):

@@ -36,6 +36,13 @@ REFERENCES = {
     "minin": "Minin, V. N. & Suchard, M. A. (2008). Counting labeled transitions in "
              "continuous-time Markov models of evolution. Journal of Mathematical Biology 56: "
              "391-412.",
+    "holland": "Holland, B. R., Huber, K. T., Dress, A. & Moulton, V. (2002). Delta plots: a tool "
+               "for analyzing phylogenetic distance data. Molecular Biology and Evolution 19: "
+               "2051-2059.",
+    "gray": "Gray, R. D., Bryant, D. & Greenhill, S. J. (2010). On the shape and fabric of human "
+            "history. Philosophical Transactions of the Royal Society B 365: 3923-3933.",
+    "mantel": "Mantel, N. (1967). The detection of disease clustering and a generalized "
+              "regression approach. Cancer Research 27: 209-220.",
     "margush": "Margush, T. & McMorris, F. R. (1981). Consensus n-trees. Bulletin of "
                "Mathematical Biology 43: 239-244.",
 }
@@ -217,6 +224,7 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
                    title=f"Where {obj.title} stands among its closest relatives")
     images = [{"src": root + "media/" + im.file, "alt": im.alt, "credit": im.credit,
                "licence": im.licence, "caption": im.caption} for im in obj.images]
+    diagnostics = _object_diagnostics(atlas, results, links, obj, v, root, notes_by_node)
     return PagePlan(path, "object.html", {
         "kind": "object", "title": obj.title, "object": {"id": obj.id, "title": obj.title},
         "facts": facts, "location": location, "images": images,
@@ -224,9 +232,86 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
         "has_note": obj.has_note, "has_row": obj.has_row,
         "groups": [{"name": g, "rows": rows} for g, rows in groups.items()],
         "ancestors": ancestors, "svg": svg,
-        "sources": list(obj.sources),
+        "sources": list(obj.sources), "diagnostics": diagnostics,
+        "contacts": _contacts_of(atlas, links, root, {obj.id}),
         "breadcrumbs": [("Lineage tree", root + "tree.html")],
     })
+
+
+def _lineage_link(atlas: Atlas, results: Results, links: Links, v: int, root: str,
+                  notes_by_node) -> dict:
+    nid = results.ids[v]
+    if results.tree.tip[v] >= 0:
+        obj = atlas.objects[nid]
+        href = links.objects[nid]
+        return {"title": obj.title if not obj.withheld else "Withheld object",
+                "href": root + href if href else ""}
+    return {"title": node_title(atlas, results, v, notes_by_node),
+            "href": root + links.nodes[nid]}
+
+
+def borrowing_rows(atlas: Atlas, results: Results, links: Links, root: str, notes_by_node,
+                   involving: int | None = None, limit: int = 10) -> list[dict]:
+    """Candidate borrowing between lineages, ranked, as table rows (withheld tips left out)."""
+    rows = []
+    discrete = atlas.discrete
+    for c in results.diagnostics.borrowing:
+        if involving is not None and involving not in (c.a, c.b):
+            continue
+        ends = [_lineage_link(atlas, results, links, x, root, notes_by_node) for x in (c.a, c.b)]
+        if any(e["title"] == "Withheld object" for e in ends):
+            continue
+        rows.append({"a": ends[0], "b": ends[1], "score": fmt(c.score),
+                     "characters": [{"label": discrete[j].label,
+                                     "href": root + links.characters[discrete[j].id]}
+                                    for j in c.characters],
+                     "distance": "–" if c.distance is None or not math.isfinite(c.distance)
+                     else f"{c.distance:,.0f} km"})
+        if len(rows) >= limit:
+            break
+    return rows
+
+
+def _contacts_of(atlas: Atlas, links: Links, root: str, names: set[str]) -> list[dict]:
+    """Declared contacts with either end among ``names`` (object ids or clade-note names)."""
+    out = []
+    by_id = {c.id: c for c in atlas.characters}
+    for c in atlas.contacts:
+        if c.source not in names and c.target not in names:
+            continue
+        other = c.target if c.source in names else c.source
+        if other in atlas.objects:
+            href = links.objects[other]
+            label = atlas.objects[other].title
+        else:
+            href, label = "", next((n.title for n in atlas.clade_notes if n.name == other), other)
+        out.append({"direction": "from" if c.target in names else "to", "other": label,
+                    "href": root + href if href else "", "note": c.note,
+                    "characters": [{"label": by_id[ch].label,
+                                    "href": root + links.characters[ch]}
+                                   for ch in c.characters if ch in by_id]})
+    return out
+
+
+def _object_diagnostics(atlas: Atlas, results: Results, links: Links, obj: ArtObject, v: int,
+                        root: str, notes_by_node) -> dict:
+    diag = results.diagnostics
+    delta = diag.delta_of(obj.taxon)
+    rank = None
+    if delta is not None:
+        order = np.argsort(-diag.delta.delta, kind="stable").tolist()
+        rank = order.index(diag.delta_taxa.index(obj.taxon)) + 1
+    from_root = diag.from_root
+    return {
+        "delta": fmt(delta[0], 3) if delta else "",
+        "q_residual": fmt(delta[1], 4) if delta else "",
+        "rank": f"{rank} of {len(diag.delta_taxa)}" if rank else "",
+        "mean_delta": fmt(diag.delta.mean_delta, 3) if diag.delta is not None else "",
+        "from_root": fmt(float(from_root[v])) if from_root is not None else "",
+        "median_from_root": fmt(float(np.median(from_root[results.tree.tip >= 0])))
+        if from_root is not None else "",
+        "borrowing": borrowing_rows(atlas, results, links, root, notes_by_node, involving=v),
+    }
 
 
 def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutNode], v: int,
@@ -275,8 +360,18 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
                    title=f"The clade below {title}")
     places = sorted({atlas.objects[m].place for m in results.members[v]
                      if atlas.objects[m].place and atlas.objects[m].place in atlas.places})
+    rng = results.diagnostics.ranges.get(v)
+    if rng is not None:
+        facts.append(("Range of its places", f"{rng.n} places, about {rng.spread_km:,.0f} km "
+                      f"from their centre, hull {rng.area_km2:,.0f} km²"))
+    violations = [{"text": violation_text(atlas, x), "note": x.rule.note}
+                  for x in results.diagnostics.violations if x.node == v]
+    names = {n.name for n in notes_by_node.get(v, [])}
     return PagePlan(path, "node.html", {
         "kind": "node", "title": title, "node_id": nid, "facts": facts, "up": up,
+        "violations": violations,
+        "borrowing": borrowing_rows(atlas, results, links, root, notes_by_node, involving=v),
+        "contacts": _contacts_of(atlas, links, root, names),
         "children": children,
         "members": _member_chips(atlas, links, root, results.members[v]),
         "groups": groups, "stem": stem, "notes": notes, "svg": svg,
@@ -285,6 +380,17 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "breadcrumbs": [("Lineage tree", root + "tree.html")],
         "uncertain_threshold": fmt(UNCERTAIN),
     })
+
+
+def violation_text(atlas: Atlas, x) -> str:
+    by_id = {c.id: c for c in atlas.characters}
+    when_c, when_s = x.rule.when
+    w = by_id[when_c]
+    c = by_id[x.character]
+    verb = "needs" if x.kind == "needs" else "rules out"
+    return (f"When {w.label} is {w.describe(when_s)}, the rule {verb} {c.label}: "
+            f"{c.describe(x.state)}; the most probable reconstruction here is "
+            f"{c.describe(x.found)}.")
 
 
 def _reconstruction(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
