@@ -81,6 +81,9 @@ SOURCES = (
     Option("rules", str, "", "Optional coherence rules between characters (TOML)."),
     Option("contacts", str, "", "Optional declared borrowing between lineages (CSV)."),
     Option("basemap", str, "", "Optional GeoJSON outline of the study region."),
+    Option("names", str, "exact", "How matrix rows and gazetteer ids are matched to tree tips: "
+           "exactly, or loosely (ignoring case, spaces, dots, hyphens and underscores).",
+           choices=("exact", "loose")),
 )
 ANALYSIS = (
     Option("burnin", (int, float), 0.25, "Fraction of the sample dropped from its start.",
@@ -275,9 +278,10 @@ def load_config(root: Path | str) -> Config:
             problems.error(file, find_line(text, key, "sources"),
                            f"[sources] {key} must name a file")
     for key, value in parts["sources"].items():
-        if value and (Path(value).is_absolute() or ".." in Path(value).parts):
+        if key != "names" and value and Path(value).is_absolute():
             problems.error(file, find_line(text, key, "sources"),
-                           f"[sources] {key} = {value!r} must be a path inside the atlas folder")
+                           f"[sources] {key} = {value!r} must be a path relative to the atlas "
+                           "folder", "so the folder can be moved and shared")
 
     columns: dict[str, dict[str, str]] = {}
     raw_columns = data.get("columns", {})

@@ -63,6 +63,8 @@ def link(sources: Sources, profile: Profile, problems: Problems | None = None) -
         raise AtlasError(problems.items or "the trees or the matrix could not be read")
     taxa = sample.taxa
     taxon_index = {t: i for i, t in enumerate(taxa)}
+    if config.sources["names"] == "loose":
+        sources = _match_loosely(sources, taxa, problems)
 
     for name in config.analysis["outgroup"]:
         if name not in taxon_index:
@@ -117,6 +119,41 @@ def link(sources: Sources, profile: Profile, problems: Problems | None = None) -
         pages=pages, contacts=tuple(contacts), rules=tuple(sources.rules),
         media=dict(sources.media), basemap=sources.basemap, warnings=tuple(problems.warnings),
     )
+
+
+def loose_key(name: str) -> str:
+    """A name with case, spaces, dots, hyphens and underscores ignored.
+
+    >>> loose_key("Moroccan.Arabic") == loose_key("moroccan_arabic") == loose_key("MoroccanArabic")
+    True
+    """
+    return re.sub(r"[\s._-]+", "", name).casefold()
+
+
+def _match_loosely(sources: Sources, taxa: tuple[str, ...], problems: Problems) -> Sources:
+    """Rename matrix rows and gazetteer ids that match a tip loosely to the tip's own label."""
+    canon: dict[str, str] = {}
+    for t in taxa:
+        key = loose_key(t)
+        if key in canon:
+            problems.error(sources.config.sources["trees"], None, f"tips {canon[key]!r} and "
+                           f"{t!r} look the same when names are matched loosely",
+                           'use names = "exact" in [sources]')
+        canon[key] = t
+
+    def rename(name: str) -> str:
+        return name if name in taxa else canon.get(loose_key(name), name)
+
+    matrix = sources.matrix
+    if matrix is not None:
+        renamed = {rename(n): row for n, row in matrix.rows.items()}
+        if len(renamed) == len(matrix.rows):
+            matrix = replace(matrix, rows=renamed, row_lines={rename(n): line for n, line in
+                                                              matrix.row_lines.items()})
+    places = [replace(p, id=rename(p.id)) for p in sources.places]
+    if len({p.id for p in places}) != len(places):
+        places = sources.places
+    return replace(sources, matrix=matrix, places=places)
 
 
 # --- characters and the matrix ------------------------------------------------------------

@@ -62,10 +62,12 @@ def test_broken_toml_names_the_line(tmp_path):
     assert info.value.problems[0].line == 2
 
 
-def test_paths_must_stay_inside_the_atlas(tmp_path):
+def test_paths_are_relative_to_the_atlas(tmp_path):
     with pytest.raises(AtlasError) as info:
-        _config(tmp_path, 'title = "T"\n[sources]\nmatrix = "../../etc/passwd"\n')
-    assert "inside the atlas folder" in info.value.problems[0].message
+        _config(tmp_path, 'title = "T"\n[sources]\nmatrix = "/etc/passwd"\n')
+    assert "relative to the atlas folder" in info.value.problems[0].message
+    config = _config(tmp_path, 'title = "T"\n[sources]\nmatrix = "../shared/m.nex"\n')
+    assert config.path("matrix") == config.root / "../shared/m.nex"
 
 
 def test_missing_config_and_unknown_profile(tmp_path):
