@@ -2,6 +2,8 @@
 
 - Every internal link and anchor resolves: ``href`` and ``src`` that point inside the site
   name a file of the build, and ``#fragment`` names an ``id`` on the target page.
+- Nothing withheld leaks: no output file (pages, data scripts, figures, downloads, images)
+  contains the id, title, place or note text of anything the build profile withholds.
 - Nothing is loaded from outside the site: ``src`` attributes and stylesheet links are local
   (plain ``<a href>`` links to other sites are allowed; they load nothing until followed).
 """
@@ -78,4 +80,25 @@ def audit_links(files: dict[str, bytes]) -> list[Problem]:
                 if unquote(parts.fragment) not in ids:
                     problems.append(Problem(path, line, f"broken anchor: {value!r} "
                                             f"(no id {parts.fragment!r} in {target})"))
+    return problems
+
+
+def audit_leaks(files: dict[str, bytes], canaries: tuple[str, ...]) -> list[Problem]:
+    """Every output file that contains text of a withheld item (ids as whole words)."""
+    if not canaries:
+        return []
+    words = [c for c in canaries if re.fullmatch(r"[\w.-]+", c)]
+    phrases = [c for c in canaries if c not in words]
+    pattern = re.compile(
+        "|".join([r"(?<![\w-])" + re.escape(w) + r"(?![\w-])" for w in words]
+                 + [re.escape(p) for p in phrases]))
+    problems = []
+    for path in sorted(files):
+        data = files[path]
+        text = data.decode("utf-8", "replace")
+        found = pattern.search(text)
+        if found:
+            line = text.count("\n", 0, found.start()) + 1
+            problems.append(Problem(path, line, "contains text the build profile withholds "
+                                    f"({found.group(0)[:40]!r}); nothing was written"))
     return problems

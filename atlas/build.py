@@ -13,7 +13,7 @@ from typing import Callable
 
 from . import __version__
 from .analysis.results import Results, analyse
-from .audit import audit_links
+from .audit import audit_leaks, audit_links
 from .config import Config, load_config
 from .errors import AtlasError, Problem, Problems
 from .link import link
@@ -91,9 +91,13 @@ def build(root: Path | str, out: Path | str | None = None, profile: str = "publi
     step("Analysing: summary tree, support, parsimony, likelihood")
     results = analyse(atlas)
     plan, files = render(atlas, results, step)
-    step("Auditing links")
+    step("Auditing links and withheld material")
     all_files = dict(files)
     all_files.update({p: b"" for p in plan.copies})
+    leaks = audit_leaks({**files, **{p: src.read_bytes() for p, src in plan.copies.items()
+                                     if not p.startswith("assets/")}}, atlas.withheld_text)
+    if leaks:
+        raise AtlasError(leaks)
     link_problems = audit_links(all_files)
     warnings = list(atlas.warnings)
     if link_problems:

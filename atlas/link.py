@@ -118,7 +118,61 @@ def link(sources: Sources, profile: Profile, problems: Problems | None = None) -
         continuous=continuous, cells=cells, places=places, clade_notes=clade_notes,
         pages=pages, contacts=tuple(contacts), rules=tuple(sources.rules),
         media=dict(sources.media), basemap=sources.basemap, warnings=tuple(problems.warnings),
+        withheld_text=withheld_text(sources, profile, objects, places),
     )
+
+
+def _passages(text: str, minimum: int = 24) -> list[str]:
+    """Distinctive stretches of a note: lines of Markdown long enough not to occur by chance."""
+    out = []
+    for line in text.splitlines():
+        line = re.sub(r"[*_`#>\[\]()!]", " ", line)
+        line = " ".join(line.split())
+        if len(line) >= minimum:
+            out.append(line[:80])
+    return out
+
+
+def withheld_text(sources: Sources, profile: Profile, objects: dict[str, ArtObject],
+                  places: dict[str, Place]) -> tuple[str, ...]:
+    """Text of everything the profile withholds, for the audit to look for in every output.
+
+    Ids are matched as whole words by the audit; titles, place names and passages of notes as
+    they stand. Text that also belongs to something published (a title shared with a public
+    object, say) is left out, since it may rightly appear.
+    """
+    canaries: set[str] = set()
+    notes = {str(n.meta.get("id", n.stem)): n for n in sources.objects}
+    for oid, obj in objects.items():
+        if not obj.withheld:
+            continue
+        canaries.add(oid)
+        note = notes.get(oid)
+        if note is not None:
+            if note.meta.get("title"):
+                canaries.add(str(note.meta["title"]))
+            canaries.update(_passages(note.body))
+            for image in note.meta.get("images") or []:
+                if isinstance(image, dict) and image.get("file"):
+                    canaries.add(str(image["file"]).rsplit("/", 1)[-1])
+    for p in sources.places:
+        if p.id not in places:
+            canaries.update({p.id, p.name})
+    for n in sources.clades:
+        if str(n.meta.get("access", "public")) not in profile.access:
+            canaries.update(_passages(n.body))
+            if n.meta.get("title"):
+                canaries.add(str(n.meta["title"]))
+    for n in sources.pages:
+        if str(n.meta.get("access", "public")) not in profile.access:
+            canaries.update(_passages(n.body))
+    published = {o.title for o in objects.values() if not o.withheld}
+    published |= {o.id for o in objects.values() if not o.withheld}
+    published |= {p.name for p in places.values()} | {p.id for p in places.values()}
+    # Text that a published note also says is not a leak when it appears.
+    shown = "\n".join(o.body for o in objects.values() if not o.withheld)
+    return tuple(sorted(c for c in canaries if c and len(c) >= 3 and c not in published
+                        and c not in shown))
 
 
 def loose_key(name: str) -> str:

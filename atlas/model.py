@@ -109,6 +109,7 @@ class Atlas:
     media: dict[str, Path]  # files from the media folder that pages may show, by name
     basemap: dict | None
     warnings: tuple[Problem, ...] = ()
+    withheld_text: tuple[str, ...] = ()  # what the profile withholds, for the leak audit
 
     @property
     def taxa(self) -> tuple[str, ...]:

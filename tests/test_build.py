@@ -113,3 +113,40 @@ def test_markdown_is_sanitised_and_fields_are_escaped(starter_files, tmp_path):
     assert "<script>window.pwned" not in html
     assert "&lt;script&gt;window.pwned=1&lt;/script&gt;Spoon" in html
     assert "onerror" not in html and "javascript:" not in html and "<iframe" not in html
+
+
+def test_withheld_material_appears_in_no_output_file(starter_files, tmp_path):
+    # Canary strings (invented) in every field of a restricted object, a restricted place and a
+    # community-only clade note; the public build must carry none of them anywhere.
+    files = dict(starter_files)
+    files["objects/spoon-a.md"] = (
+        "---\nid: spoon-a\ntitle: Canary title qx7\nplace: secret-cave\naccess: restricted\n"
+        "period: canary period qx7\ncommunity: Canary community qx7\n"
+        "images:\n  - {file: canary-qx7.png, alt: canary alt qx7, credit: canary credit qx7}\n"
+        "---\nThe canary body text qx7 says where the spoon was hidden.\n")
+    files["media/canary-qx7.png"] = b"\x89PNG\r\n\x1a\n"
+    files["places.csv"] += "secret-cave,Canary cave qx7,-31.123,-15.456,exact,restricted\n"
+    files["clades/hooked.md"] = ("---\ntitle: Canary clade qx7\nmembers: [spoon-a, spoon-b]\n"
+                                 "access: community\n---\nCanary clade note body qx7 is long.\n")
+    root = write_atlas(tmp_path / "a", files)
+    out = tmp_path / "site"
+    build(root, out)
+    for path in out.rglob("*"):
+        if path.is_file():
+            data = path.read_bytes()
+            assert b"qx7" not in data, path
+            assert b"-31.123" not in data and b"-15.456" not in data, path
+    assert not (out / "objects" / "spoon-a.html").exists()
+    community = tmp_path / "community"
+    build(root, community, profile="community")
+    assert b"Canary clade qx7" in (community / "index.html").read_bytes()
+
+
+def test_leak_audit_catches_planted_text():
+    from atlas.audit import audit_leaks
+
+    files = {"index.html": b"<p>lamp-21 and lamp-2</p>", "data/tree.js": b"x = 'Secret title';"}
+    problems = audit_leaks(files, ("lamp-2", "Secret title"))
+    # "lamp-2" is found as a whole word, not inside "lamp-21" (invented case)
+    assert [(p.file, p.line) for p in problems] == [("data/tree.js", 1), ("index.html", 1)]
+    assert audit_leaks({"index.html": b"<p>lamp-21</p>"}, ("lamp-2",)) == []
