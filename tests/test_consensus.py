@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from dendropy.utility import constants
 
+import atlas.analysis.consensus as consensus_module
 from atlas.analysis.consensus import (
     clade_support,
     majority_rule,
@@ -19,7 +20,7 @@ from atlas.analysis.consensus import (
     node_ids,
     reroot,
 )
-from atlas.analysis.tree import clade_masks
+from atlas.analysis.tree import clade_masks, clade_words
 from atlas.errors import AtlasError
 from atlas.sources.trees import TreeSample, mask_labels, parse_newick, read_tree_file
 
@@ -219,3 +220,33 @@ def test_node_ids():
     # the same clade in another tree gets the same id
     other = node_ids(parse_newick("(lamp_c,(lamp_a,'lamp b'));"))
     assert ids[2] in other
+
+
+# --- the array kernels -----------------------------------------------------------------------
+
+
+def test_clade_words_equal_clade_masks(posterior):
+    ours, _ = posterior
+    trees = ours.trees[:50]
+    rows, offsets = clade_words(trees, len(ours.taxa))
+    for k, tree in enumerate(trees):  # the one-node-at-a-time loop of atlas.analysis.tree
+        got = [int.from_bytes(r.tobytes(), "little") for r in rows[offsets[k] : offsets[k + 1]]]
+        assert got == clade_masks(tree)
+    wide = parse_newick("(" + ",".join(f"t{i:03d}" for i in range(130)) + ");")
+    rows, _ = clade_words([wide], 130)  # more than 64 taxa: three words
+    assert rows.shape == (131, 3)
+    assert int.from_bytes(rows[-1].tobytes(), "little") == (1 << 130) - 1
+
+
+def test_unique_rows_equal_numpy_and_survive_hash_collisions(monkeypatch):
+    rng = np.random.default_rng(3)  # seeded
+    rows = rng.integers(0, 4, size=(500, 3)).astype(np.uint64)
+    unique, hashes, inverse = consensus_module._unique_rows(rows)
+    assert np.array_equal(unique[inverse], rows)
+    # numpy's own exact row unique as the reference
+    assert len(unique) == len(np.unique(rows, axis=0)) and hashes is not None
+    monkeypatch.setattr(consensus_module, "_hash_rows", lambda r: np.zeros(len(r), np.uint64))
+    unique, hashes, inverse = consensus_module._unique_rows(rows)  # every hash collides
+    assert hashes is None and np.array_equal(unique[inverse], rows)
+    sample = sample_of("((A,B),(C,D));", "((A,B),C,D);", "((A,C),(B,D));")
+    assert clade_support(sample, sample.trees[0])[1].tolist() == [3, 3, 2, 3, 3, 1, 3]

@@ -371,3 +371,12 @@ def test_decimals_equal_python_float():
         assert ok == bool(trees_module._NUMBER.match(text)), text
         if ok:
             assert value == float(text) and np.signbit(value) == np.signbit(float(text)), text
+
+
+def test_block_without_end(tmp_path):
+    # (invented case) the file stops inside the TREES block, after a whole tree
+    text = "#NEXUS\nBEGIN TREES;\n  TREE a = ((A,B),C);\n  TRE"
+    assert problems_of(tmp_path, text) == [(4, "the TREES block begun on line 2 has no END")]
+    # a tree cut short is reported as such, without a second message about the block
+    text = "#NEXUS\nBEGIN TREES;\n  TREE a = ((A,B),C);\n  TREE b = ((A,"
+    assert problems_of(tmp_path, text) == [(4, "truncated tree: 2 '(' not closed at end of file")]

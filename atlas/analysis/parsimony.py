@@ -230,8 +230,10 @@ def fitch(
     from ``i`` to ``j`` costing ``|i - j|`` (Farris 1970, Syst. Zool. 19:83). The length is the
     sum of the steps, ``L = sum_j s_j``. The final sets are the states that some most
     parsimonious reconstruction gives the node (the MPR sets of Swofford & Maddison 1987,
-    Math. Biosci. 87:199), found from Sankoff's down and up costs (:func:`state_costs`), which
-    also give the steps of ordered characters.
+    Math. Biosci. 87:199): on a binary tree, unordered characters get them from Fitch's second
+    pass (:func:`fitch_final`); ordered characters, and every character on a tree with
+    polytomies, from Sankoff's down and up costs (:func:`state_costs`), which also give the
+    steps of ordered characters.
 
     Example (invented case): ``((A,B),(C,D))`` with A=0, B=0, C=1, D=1 needs 1 step; every
     internal node can only be 0 on the (A,B) side and 1 on the (C,D) side, the root either.

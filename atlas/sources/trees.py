@@ -500,12 +500,16 @@ def _parse_batch(bodies: list[str], names: _Namespace) -> list[tuple | None]:
     tips = np.flatnonzero(is_tip)
     t_start, t_end = dpos[ev_d[tips]] + 1, dpos[ev_d[tips] + 1]
     numbered = names.numbered()
-    keys, good = _decimals(b, t_start, t_end) if numbered is not None else (None, None)
-    if keys is not None and good.all() and np.all(b[t_start] != 43) and np.all(b[t_start] != 45):
+    plain_keys = numbered is not None and bool(np.all(t_end > t_start))
+    if plain_keys:  # digits only, no leading zero: the text is the number's own spelling
+        c = b[t_start]
+        plain_keys = bool(np.all((c >= 49) & (c <= 57) | ((c == 48) & (t_end - t_start == 1))))
+        plain_keys = plain_keys and not _joined(b, t_start, t_end).translate(None, b"0123456789,")
+    if plain_keys:
         # numeric TRANSLATE keys (what MCMC programs write): look them up as an array
-        keys = keys.astype(np.int64)
-        known = (keys == np.floor(keys)) & (keys >= 0) & (keys < len(numbered))
-        tip_labels = numbered[np.where(known, keys, 0)]
+        keys = _decimals(b, t_start, t_end)[0]
+        known = keys < len(numbered)
+        tip_labels = numbered[np.where(known, keys, 0).astype(np.int64)]
         tip_labels[~known] = None
         spoil(~known | np.equal(tip_labels, None), ev_tree[tips])
     else:
@@ -651,37 +655,46 @@ class _Reader:
                 self.error(pos, f"expected BEGIN, found {value or kind!r}")
                 _skip_to_semicolon(tokens)
                 continue
+            begin, errors = pos, len(self.problems.errors)
             kind, block, pos = next(tokens, ("", "", pos))
             _skip_to_semicolon(tokens)
             block = block.upper()
             if block == "TREES":
-                self.trees_block(tokens)
+                closed = self.trees_block(tokens)
                 self.flush()
             elif block == "TAXA":
-                self.taxa_block(tokens)
+                closed = self.taxa_block(tokens)
             else:
-                self.skip_block(tokens)
+                closed = self.skip_block(tokens)
+            if not closed and len(self.problems.errors) == errors:  # else already said
+                self.error(
+                    len(self.text),
+                    f"the {block} block begun on line {self.line(begin)} has no END",
+                    "the file may be cut short",
+                )
 
-    def skip_block(self, tokens: Iterator[Token]) -> None:
+    # Each block reader returns False when the text ends before the block's END.
+
+    def skip_block(self, tokens: Iterator[Token]) -> bool:
         while True:
             token = self.command(tokens)
             if token is None:
-                return
+                return False
             if token[0] == "w" and token[1].upper() in ("END", "ENDBLOCK"):
                 _skip_to_semicolon(tokens)
-                return
+                return True
             if token[0] != ";":
                 _skip_to_semicolon(tokens)
 
-    def taxa_block(self, tokens: Iterator[Token]) -> None:
+    def taxa_block(self, tokens: Iterator[Token]) -> bool:
         while True:
             token = self.command(tokens)
             if token is None:
-                return
+                return False
             word = token[1].upper() if token[0] == "w" else ""
             if word in ("END", "ENDBLOCK"):
                 _skip_to_semicolon(tokens)
-                return
+                return True
             if word != "TAXLABELS":
                 _skip_to_semicolon(tokens)
                 continue
@@ -692,27 +705,28 @@ class _Reader:
                     self.names.taxlabels.append(value)
                 elif kind == "x":
                     self.error(pos, value)
-                    return
+                    return True
 
-    def trees_block(self, tokens: Iterator[Token]) -> None:
+    def trees_block(self, tokens: Iterator[Token]) -> bool:
         while not self.full():
             token = self.command(tokens)
             if token is None:
-                return
+                return False
             kind, value, pos = token
             if kind == "x":
                 self.error(pos, value)
-                return
+                return True
             word = value.upper() if kind == "w" else ""
             if word in ("END", "ENDBLOCK"):
                 _skip_to_semicolon(tokens)
-                return
+                return True
             if word == "TRANSLATE":
                 self.translate(tokens)
             elif word in ("TREE", "UTREE"):
                 self.tree_command(tokens, pos)
             else:
                 _skip_to_semicolon(tokens)
+        return True
 
     def translate(self, tokens: Iterator[Token]) -> None:
         pair: list[str] = []
