@@ -49,8 +49,7 @@ def study_stats(atlas: Atlas, results: Results) -> dict:
         j = c.column
         row = {"id": c.id, "steps": int(par.steps[j])}
         for key, attr in (("min", "min_steps"), ("max", "max_steps"), ("ci", "ci"), ("ri", "ri")):
-            values = getattr(par, attr, None)
-            row[key] = _num(values[j]) if values is not None else None
+            row[key] = _num(getattr(results.indices, attr)[j])
         by_character.append(row)
     fit = results.fit
     diag = results.diagnostics
@@ -90,9 +89,9 @@ def study_stats(atlas: Atlas, results: Results) -> dict:
                     if clades else None},
         "clades": clades,
         "parsimony": {"length": int(par.length),
-                      "ci": _num(getattr(par, "ensemble_ci", None)),
-                      "ri": _num(getattr(par, "ensemble_ri", None)),
-                      "rc": _num(getattr(par, "ensemble_rc", None))},
+                      "ci": _num(results.indices.ensemble_ci),
+                      "ri": _num(results.indices.ensemble_ri),
+                      "rc": _num(results.indices.ensemble_rc)},
         "by_character": by_character,
         "model": None if fit is None else {
             "name": fit.model, "rates": {k: _num(v) for k, v in sorted(fit.rates.items())},

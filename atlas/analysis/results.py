@@ -18,7 +18,7 @@ from .changes import Changes, expected_changes
 from .diagnostics import Diagnostics, diagnose
 from .consensus import Summary, clade_support, majority_rule, mcc_tree, node_ids, reroot
 from .likelihood import MkFit, ancestral_states, fit_mk, reconstruct_over_sample
-from .parsimony import Parsimony, fitch
+from .parsimony import Indices, Parsimony, fitch, indices
 from .tree import Tree, clade_masks
 
 
@@ -28,6 +28,7 @@ class Results:
     ids: list[str]  # stable id of every summary-tree node (a tip's id is its label)
     members: list[tuple[str, ...]]  # sorted tip labels below every node
     parsimony: Parsimony
+    indices: Indices  # CI, RI, RC per character and for the whole matrix
     fit: MkFit | None  # None when no discrete character varies
     probs: np.ndarray  # (n_nodes, n_discrete, max_k): marginal state probabilities
     prob_trees: np.ndarray  # per node: how many sample trees the probabilities average over
@@ -75,6 +76,7 @@ def analyse(atlas: Atlas) -> Results:
 
     n_chars = atlas.masks.shape[1]
     parsimony = fitch(tree, atlas.masks, atlas.n_states, atlas.ordered)
+    stats = indices(tree, atlas.masks, atlas.n_states, atlas.ordered)
     max_k = int(atlas.n_states.max()) if n_chars else 2
     probs = np.zeros((tree.n_nodes, n_chars, max_k))
     prob_trees = np.zeros(tree.n_nodes, dtype=np.int64)
@@ -102,7 +104,7 @@ def analyse(atlas: Atlas) -> Results:
 
         continuous = brownian_ancestors(tree, atlas.continuous)
     diagnostics = diagnose(atlas, tree, changes, probs, masks_by_node, fit is not None)
-    return Results(summary, ids, members, parsimony, fit, probs, prob_trees, changes, continuous,
+    return Results(summary, ids, members, parsimony, stats, fit, probs, prob_trees, changes, continuous,
                    diagnostics)
 
 

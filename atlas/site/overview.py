@@ -225,9 +225,7 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
     for label, attr in (("Ensemble consistency index (CI)", "ensemble_ci"),
                         ("Ensemble retention index (RI)", "ensemble_ri"),
                         ("Rescaled consistency index (RC)", "ensemble_rc")):
-        value = getattr(par, attr, None)
-        if value is not None:
-            parsimony.append((label, fmt(float(value), 3)))
+        parsimony.append((label, fmt(float(getattr(results.indices, attr)), 3)))
     model = []
     fit = results.fit
     if fit is not None:
@@ -255,7 +253,8 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
         "kind": "methods", "title": "Methods", "paragraph": paragraph, "data": data,
         "trees": trees, "parsimony": parsimony, "model": model,
         "references": [REFERENCES[k] for k in ("margush", "fitch", "kluge", "farris", "lewis",
-                                               "yang", "minin", "holland", "gray", "mantel")],
+                                               "collard", "yang", "minin", "holland", "gray",
+                                               "mantel")],
         "gaps": _gaps(atlas, links),
         "diagnostics": _diagnostics(atlas, results, links, notes_by_node),
     })

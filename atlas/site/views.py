@@ -36,6 +36,9 @@ REFERENCES = {
     "minin": "Minin, V. N. & Suchard, M. A. (2008). Counting labeled transitions in "
              "continuous-time Markov models of evolution. Journal of Mathematical Biology 56: "
              "391-412.",
+    "collard": "Collard, M., Shennan, S. J. & Tehrani, J. J. (2006). Branching, blending, and the "
+               "evolution of cultural similarities and differences among human populations. "
+               "Evolution and Human Behavior 27: 169-184.",
     "holland": "Holland, B. R., Huber, K. T., Dress, A. & Moulton, V. (2002). Delta plots: a tool "
                "for analyzing phylogenetic distance data. Molecular Biology and Evolution 19: "
                "2051-2059.",
@@ -465,9 +468,7 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
         par = results.parsimony
         facts.append(("Steps on the summary tree (parsimony)", str(int(par.steps[c.column]))))
         for name, attr in (("Consistency index (CI)", "ci"), ("Retention index (RI)", "ri")):
-            values = getattr(par, attr, None)
-            if values is not None:
-                facts.append((name, fmt(float(values[c.column]))))
+            facts.append((name, fmt(float(getattr(results.indices, attr)[c.column]))))
         if results.changes is not None:
             tree = results.tree
             total = results.changes.total[:, c.column]
@@ -498,7 +499,7 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
 def glossary_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
     groups: dict[str, list[dict]] = defaultdict(list)
     par = results.parsimony
-    ci = getattr(par, "ci", None)
+    ci = results.indices.ci
     for c in atlas.characters:
         row = {"id": c.id, "label": c.label, "href": links.characters[c.id],
                "states": [{"symbol": s, "description": d}
