@@ -97,6 +97,9 @@ ANALYSIS = (
     Option("rates", str, "gamma4", "Among-character rate variation.",
            choices=("equal", "gamma4")),
     Option("seed", int, 1, "Seed for every random step."),
+    Option("ancestral_trees", int, 250, "At most this many sampled trees, evenly spaced, are "
+           "used to average ancestral states over the sample (0: every tree).",
+           check=lambda v: "" if v >= 0 else "must be 0 or more"),
 )
 PROFILE = (
     Option("access", list, ["public"], "Access levels this profile publishes.",

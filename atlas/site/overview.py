@@ -216,6 +216,8 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
         ("Trees read", str(sample.read)),
         ("Burn-in", f"{sample.burnin} trees ({100 * analysis['burnin']:.0f}%)"),
         ("Trees used", str(len(sample.trees))),
+        ("Trees averaged for ancestral states",
+         str(min(len(sample.trees), analysis["ancestral_trees"] or len(sample.trees)))),
         ("Summary tree", summary.method),
         ("Outgroup", ", ".join(analysis["outgroup"]) or "none: trees are rooted as written"),
         ("Clades in the summary tree", str(len(internal))),
