@@ -7,9 +7,9 @@ the previous site exactly as it was.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
 
 from . import __version__
 from .analysis.results import Results, analyse
@@ -54,7 +54,8 @@ def load_config_atlas(config: Config, profile: str = "public", step: Step = _qui
     return link(sources, chosen, problems)
 
 
-def render(atlas: Atlas, results: Results, step: Step = _quiet) -> tuple[SitePlan, dict[str, bytes]]:
+def render(atlas: Atlas, results: Results,
+           step: Step = _quiet) -> tuple[SitePlan, dict[str, bytes]]:
     """Plan and render every page; return the plan and all generated files as bytes."""
     step("Planning pages")
     plan = plan_site(atlas, results)

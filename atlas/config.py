@@ -11,9 +11,10 @@ from __future__ import annotations
 
 import re
 import tomllib
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 from .errors import AtlasError, Problems, did_you_mean
 
@@ -48,7 +49,8 @@ def _string_list(v: Any) -> str:
 def _languages(v: Any) -> str:
     if not v:
         return "must name at least one language"
-    bad = [x for x in v if not isinstance(x, str) or not re.fullmatch(r"[a-z]{2,3}(-[A-Za-z0-9]+)?", x)]
+    code = re.compile(r"[a-z]{2,3}(-[A-Za-z0-9]+)?")
+    bad = [x for x in v if not isinstance(x, str) or not code.fullmatch(x)]
     return f"has values that are not language codes: {bad}" if bad else ""
 
 

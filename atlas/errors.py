@@ -9,8 +9,8 @@ one :class:`AtlasError` holding all of them, and the command line prints them as
 from __future__ import annotations
 
 import difflib
+from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Iterable
 
 EXIT_OK = 0
 EXIT_INPUT = 1
@@ -73,7 +73,7 @@ class Problems:
     def warn(self, file: str, line: int | None, message: str, hint: str = "") -> None:
         self.items.append(Problem(str(file), line, message, hint, "warning"))
 
-    def extend(self, other: "Problems | Iterable[Problem]") -> None:
+    def extend(self, other: Problems | Iterable[Problem]) -> None:
         self.items.extend(other.items if isinstance(other, Problems) else other)
 
     @property

@@ -10,9 +10,9 @@ from __future__ import annotations
 import functools
 import threading
 import time
+from collections.abc import Callable
 from http.server import SimpleHTTPRequestHandler, ThreadingHTTPServer
 from pathlib import Path
-from typing import Callable
 
 from .errors import AtlasError
 

@@ -102,7 +102,8 @@ title: Spoon with hooked handle and plain rim
 place: brinmoor
 access: public
 ---
-A second hook-handled spoon; its rim notch could not be seen on the photograph, so it is coded unknown (invented).
+A second hook-handled spoon; its rim notch could not be seen on the photograph,
+so it is coded unknown (invented).
 """,
     "objects/spoon-c.md": """\
 ---
@@ -129,7 +130,8 @@ title: Ladle from the Old Fold
 place: old-fold
 access: public
 ---
-A very deep ladle used here as the outgroup. Its find-spot is generalised in the gazetteer (invented).
+A very deep ladle used here as the outgroup. Its find-spot is generalised in the
+gazetteer (invented).
 """,
     "characters/bowl.md": """\
 ---

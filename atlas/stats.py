@@ -101,7 +101,8 @@ def study_stats(atlas: Atlas, results: Results) -> dict:
         "objects": objects,
         "borrowing": borrowing,
         "delta": None if diag.delta is None else {
-            "mean": _num(diag.delta.mean_delta), "mean_q_residual": _num(diag.delta.mean_q_residual),
+            "mean": _num(diag.delta.mean_delta),
+            "mean_q_residual": _num(diag.delta.mean_q_residual),
             "quartets": diag.delta.n_quartets, "sampled": diag.delta.sampled},
         "mantel": mantel,
     }
@@ -133,7 +134,8 @@ def stats_table(stats: dict) -> list[tuple[str, str]]:
             rows.append((f"Ensemble {key.upper()}", f"{p[key]:.3f}"))
     if stats["model"]:
         m = stats["model"]
-        rows.append(("Model", m["name"] + (f", gamma alpha {m['alpha']:.3g}" if m["alpha"] else "")))
+        alpha = f", gamma alpha {m['alpha']:.3g}" if m["alpha"] else ""
+        rows.append(("Model", m["name"] + alpha))
         rows.append(("Rates", ", ".join(f"{k} {v:.4g}" for k, v in m["rates"].items())))
         rows.append(("Log-likelihood", f"{m['loglik']:.2f}"))
     return rows

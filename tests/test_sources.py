@@ -65,7 +65,8 @@ def test_matrix_nexus_multistate_with_polymorphisms():
     assert not problems.items
     assert len(m.rows) == 25 and len(m.characters) == 95
     assert m.characters[:3] == ("ALL", "ASHES", "BARKTREE")
-    polymorphic = sorted((name, cell) for name, row in m.rows.items() for cell in row if "/" in cell)
+    polymorphic = sorted((name, cell) for name, row in m.rows.items()
+                         for cell in row if "/" in cell)
     assert len(polymorphic) == 4
     assert ("Hebrew", "C/J") in polymorphic
 

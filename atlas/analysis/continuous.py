@@ -4,7 +4,8 @@ Under Brownian motion a character changes along a branch of length ``t`` by a no
 variance ``sigma^2 t``, independently on every branch. Given the tip values, the joint
 log-likelihood of the values ``x`` at all nodes is::
 
-    log L = sum over branches (p -> c) of  -(x_c - x_p)^2 / (2 sigma^2 t_c) - log(2 pi sigma^2 t_c) / 2
+    log L = sum over branches (p -> c) of
+            -(x_c - x_p)^2 / (2 sigma^2 t_c) - log(2 pi sigma^2 t_c) / 2
 
 The maximum-likelihood ancestral values (Schluter, Price, Mooers & Ludwig 1997, Evolution
 51:1699-1711) maximise it over the internal values; their standard errors come from its

@@ -22,10 +22,25 @@ import numpy as np
 from ..errors import AtlasError
 from ..model import Atlas
 from .changes import Changes
-from .geography import (MantelResult, Range, clade_range, distance_matrix, great_circle_km,
-                        mantel, patristic_distances)
-from .reticulation import (Candidate, DeltaScores, Violation, borrowing_candidates,
-                           changes_from_root, check_rules, delta_scores, matrix_distances)
+from .geography import (
+    MantelResult,
+    Range,
+    clade_range,
+    distance_matrix,
+    great_circle_km,
+    mantel,
+    patristic_distances,
+)
+from .reticulation import (
+    Candidate,
+    DeltaScores,
+    Violation,
+    borrowing_candidates,
+    changes_from_root,
+    check_rules,
+    delta_scores,
+    matrix_distances,
+)
 from .tree import Tree
 
 

@@ -322,7 +322,8 @@ def mk_chain(rate: float, k: int) -> Chain:
 
 def gain_loss_chain(gain: float, loss: float) -> Chain:
     """Binary chain with gain 0->1 at ``gain`` and loss 1->0 at ``loss``; stationary prior
-    ``(loss, gain) / (gain + loss)``; ``P_01(t) = gain / (gain + loss) (1 - exp(-(gain + loss) t))``.
+    ``(loss, gain) / (gain + loss)``;
+    ``P_01(t) = gain / (gain + loss) (1 - exp(-(gain + loss) t))``.
     """
     q = np.array([[-gain, gain], [loss, -loss]], dtype=np.float64)
     return reversible_chain(q, np.array([loss, gain]) / (gain + loss))

@@ -15,8 +15,8 @@ import numpy as np
 
 from ..model import Atlas
 from .changes import Changes, expected_changes
-from .diagnostics import Diagnostics, diagnose
 from .consensus import Summary, clade_support, majority_rule, mcc_tree, node_ids, reroot
+from .diagnostics import Diagnostics, diagnose
 from .likelihood import MkFit, ancestral_states, fit_mk, reconstruct_over_sample
 from .parsimony import Indices, Parsimony, fitch, indices
 from .tree import Tree, clade_masks
@@ -106,7 +106,8 @@ def analyse(atlas: Atlas) -> Results:
 
         continuous = brownian_ancestors(tree, atlas.continuous)
     diagnostics = diagnose(atlas, tree, changes, probs, masks_by_node, fit is not None)
-    return Results(summary, ids, members, parsimony, stats, fit, probs, prob_trees, changes, continuous,
+    return Results(summary, ids, members, parsimony, stats, fit, probs, prob_trees, changes,
+                   continuous,
                    diagnostics)
 
 

@@ -30,7 +30,8 @@ class LayoutNode:
 
 
 def tree_layout(tree: Tree, ids: list[str], labels: list[str], hrefs: list[str],
-                support: np.ndarray, withheld: set[int] | None = None) -> tuple[list[LayoutNode], bool]:
+                support: np.ndarray, withheld: set[int] | None = None,
+                ) -> tuple[list[LayoutNode], bool]:
     """Rectangular layout: x = distance from the root, y = tip order (internal: mean of children).
 
     Branch lengths are used when every non-root branch has a finite, non-negative length and

@@ -10,8 +10,8 @@ style, an event handler or a request to another site: images may only come from 
 from __future__ import annotations
 
 import re
-from html import unescape
 from dataclasses import dataclass
+from html import unescape
 
 import markdown
 import nh3

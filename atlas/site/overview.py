@@ -12,8 +12,16 @@ from ..analysis.results import Results
 from ..model import Atlas
 from .figures import LayoutNode
 from .markdown import plain_text, render_markdown
-from .views import (REFERENCES, Links, PagePlan, borrowing_rows, fmt, node_title, root_of,
-                    violation_text)
+from .views import (
+    REFERENCES,
+    Links,
+    PagePlan,
+    borrowing_rows,
+    fmt,
+    node_title,
+    root_of,
+    violation_text,
+)
 
 PLOT_SCRIPTS = ("assets/plotly.min.js",)
 TREE_SCRIPTS = (*PLOT_SCRIPTS, "data/tree.js", "assets/tree.js")
@@ -40,7 +48,8 @@ def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> Pa
     return PagePlan("index.html", "index.html", {
         "kind": "home", "title": config.title, "subtitle": config.subtitle, "counts": counts,
         "lineages": lineages,
-        "pages": [{"title": p.title, "href": links.pages[p.name], "summary": plain_text(p.body, 160)}
+        "pages": [{"title": p.title, "href": links.pages[p.name],
+                   "summary": plain_text(p.body, 160)}
                   for p in atlas.pages],
         "recent": [{"title": o.title, "href": links.objects[o.id]}
                    for o in sorted(visible, key=lambda o: o.title)[:12]],
@@ -207,7 +216,8 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
         ("Objects without a matrix row", str(n_taxa - len(coded))),
         ("Discrete characters", str(len(atlas.discrete))),
         ("Continuous characters", str(len(atlas.continuous_characters))),
-        ("Unknown cells (?)", f"{missing} of {total_cells} ({100 * missing / max(total_cells, 1):.1f}%)"),
+        ("Unknown cells (?)",
+         f"{missing} of {total_cells} ({100 * missing / max(total_cells, 1):.1f}%)"),
         ("Not applicable cells (-)", str(gaps)),
         ("Polymorphic cells", str(poly)),
     ]

@@ -14,11 +14,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..analysis.results import Results
 from ..link import slug
 from ..model import ArtObject, Atlas, Character
-from ..analysis.results import Results
 from .figures import LayoutNode, neighbourhood, tree_svg
-from .markdown import Targets, plain_text, render_markdown
+from .markdown import Targets, render_markdown
 
 UNCERTAIN = 0.7  # a reconstruction whose most probable state has less than this is "uncertain"
 REFERENCES = {
@@ -334,7 +334,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         ("Objects in the clade", str(len(results.members[v]))),
     ]
     if results.fit is not None:
-        facts.append(("Reconstruction averaged over", f"{int(results.prob_trees[v])} sampled trees"))
+        facts.append(("Reconstruction averaged over",
+                      f"{int(results.prob_trees[v])} sampled trees"))
     parent = int(tree.parent[v])
     up = None
     if parent >= 0:

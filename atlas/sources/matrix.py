@@ -157,7 +157,6 @@ def _read_nexus(text: str, shown: str, problems: Problems) -> MatrixTable | None
     lines: dict[str, int] = {}
     while i < n:
         cmd = str(word(i)).upper()
-        line = toks[i][1]
         j = i + 1
         while j < n and toks[j][0] != ";":
             j += 1

@@ -28,7 +28,7 @@ class Note:
     body: str
     body_line: int  # the line where the Markdown body starts
     key_lines: dict[str, int] = field(default_factory=dict)
-    translations: dict[str, "Note"] = field(default_factory=dict)
+    translations: dict[str, Note] = field(default_factory=dict)
 
     def line(self, key: str) -> int:
         return self.key_lines.get(key, 1)

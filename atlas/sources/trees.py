@@ -1,7 +1,8 @@
 """Reading trees: Newick and NEXUS files, one tree or a posterior sample.
 
 A small tokenizer of our own turns the text into tokens (punctuation, words, quoted labels,
-comments) and a postorder builder turns each tree statement into a :class:`~atlas.analysis.tree.Tree`.
+comments) and a postorder builder turns each tree statement into a
+:class:`~atlas.analysis.tree.Tree`.
 What MCMC programs write is accepted as written:
 
 - NEXUS ``TREES`` blocks with ``TRANSLATE`` (keys numbered from 0 or 1, or names), a ``TAXA``
