@@ -150,6 +150,27 @@ def stats(directory: Path, fmt: str, profile: str) -> None:
 
 @main.command()
 @click.argument("directory", default=".", type=click.Path(file_okay=False, path_type=Path))
+@click.option("--out", "out", default="figures", show_default=True,
+              type=click.Path(file_okay=False, path_type=Path), help="Folder for the figures.")
+@click.option("--character", "characters", multiple=True, metavar="ID",
+              help="Also draw this character's states on the tree (repeatable).")
+@click.option("--profile", default="public", show_default=True,
+              help="Build profile from atlas.toml: which access levels to show.")
+def figures(directory: Path, out: Path, characters: tuple[str, ...], profile: str) -> None:
+    """Write print-ready SVG figures of the lineage tree (PNG too when cairosvg is installed)."""
+    from .figures import write_figures
+
+    def run():
+        with _progress() as step:
+            paths = write_figures(directory, out, list(characters), profile, say=step)
+        for path in paths:
+            click.echo(str(path))
+
+    _run(run)
+
+
+@main.command()
+@click.argument("directory", default=".", type=click.Path(file_okay=False, path_type=Path))
 @click.option("--out", "out", default="build", show_default=True, type=click.Path(path_type=Path))
 @click.option("--profile", default="public", show_default=True)
 @click.option("--port", default=8000, show_default=True, type=click.IntRange(0, 65535))

@@ -12,7 +12,7 @@ from pathlib import Path
 
 from ..analysis.results import Results
 from ..model import Atlas
-from . import overview, views
+from . import overview, treedata, views
 from .figures import tree_layout, tree_svg
 from .mapsvg import land_paths, map_svg
 from .views import Links, PagePlan
@@ -128,7 +128,8 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
 
     pages: list[PagePlan] = [
         overview.home_page(atlas, results, links, notes_by_node),
-        overview.tree_page(atlas, results, links, notes_by_node, use_lengths),
+        treedata.tree_page_plot(
+            overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas),
         overview.map_page(atlas, results, links),
         views.glossary_page(atlas, results, links),
         overview.methods_page(atlas, results, links, notes_by_node),
@@ -140,7 +141,8 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         if tree.tip[v] < 0:
             pages.append(views.node_page(atlas, results, links, layout, v, notes_by_node))
     for c in atlas.characters:
-        pages.append(views.character_page(atlas, results, links, c, notes_by_node))
+        pages.append(treedata.character_page_plot(
+            views.character_page(atlas, results, links, c, notes_by_node), c))
     for pid in sorted(atlas.places):
         pages.append(overview.place_page(atlas, results, links, pid))
     for page in atlas.pages:
@@ -154,6 +156,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         "data/world.js": world_js(),
         "data/basemap.js": js_global("basemap", atlas.basemap),
     }
+    data.update(treedata.data_files(atlas, results))  # data/states.js, data/contacts.js
     # Only media that a published page shows are copied: restricted images never leave.
     shown = {im.file for o in atlas.visible_objects() for im in o.images}
     shown |= {c.image.file for c in atlas.characters if c.image is not None}
