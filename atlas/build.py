@@ -59,7 +59,7 @@ def render(atlas: Atlas, results: Results,
     """Plan and render every page; return the plan and all generated files as bytes."""
     step("Planning pages")
     plan = plan_site(atlas, results)
-    theme = find_theme(atlas.config.theme)
+    theme = find_theme("kiosk" if atlas.profile.kiosk else atlas.config.theme)
     site = SiteInfo(
         title=atlas.config.title, licence=atlas.config.licence, nav=plan.nav,
         kiosk=atlas.profile.kiosk, idle_seconds=atlas.profile.idle_seconds,
@@ -70,6 +70,7 @@ def render(atlas: Atlas, results: Results,
     files: dict[str, bytes] = {path: text.encode("utf-8") for path, text in html.items()}
     files.update({path: text.encode("utf-8") for path, text in plan.data.items()})
     files.update({path: text.encode("utf-8") for path, text in plan.files.items()})
+    files.update(plan.media)
     for folder in reversed(theme.asset_folders):  # a child theme's assets win
         for asset in sorted(folder.rglob("*")):
             if asset.is_file():

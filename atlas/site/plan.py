@@ -6,13 +6,15 @@ plan into bytes and files.
 from __future__ import annotations
 
 import json
-from dataclasses import dataclass
+import os
+from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 
 from ..analysis.results import Results
 from ..model import Atlas
-from . import overview, treedata, views
+from ..stats import study_stats
+from . import downloads, images, overview, search, treedata, views
 from .figures import tree_layout, tree_svg
 from .mapsvg import land_paths, map_svg
 from .views import Links, PagePlan
@@ -26,6 +28,7 @@ class SitePlan:
     files: dict[str, str]  # other generated files (static figures)
     links: Links
     nav: list[tuple[str, str]]  # (label, site-root-relative href)
+    media: dict[str, bytes] = field(default_factory=dict)  # published images, metadata stripped
 
 
 def js_global(name: str, value) -> str:
@@ -148,6 +151,18 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     for page in atlas.pages:
         pages.append(overview.free_page(atlas, links, page))
 
+    search_page, search_data = search.search_plan(atlas, results, links)
+    pages.append(search_page)
+    download_files: dict[str, str] = {}
+    if not atlas.profile.kiosk:  # the kiosk offers no downloads
+        downloads_page, download_files = downloads.downloads_plan(
+            atlas, results, links, study_stats(atlas, results),
+            released=downloads.release_date(os.environ))
+        pages.append(downloads_page)
+    # Only images that a published page shows are published: restricted ones never leave.
+    media, variants = images.publish_images(atlas)
+    pages = [images.with_srcset(p, variants) for p in pages]
+
     mapped = places_data(atlas, links, results)
     data = {
         "data/tree.js": js_global("tree", overview.layout_data(
@@ -157,15 +172,18 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         "data/basemap.js": js_global("basemap", atlas.basemap),
     }
     data.update(treedata.data_files(atlas, results))  # data/states.js, data/contacts.js
-    # Only media that a published page shows are copied: restricted images never leave.
-    shown = {im.file for o in atlas.visible_objects() for im in o.images}
-    shown |= {c.image.file for c in atlas.characters if c.image is not None}
-    copies = {f"media/{name}": atlas.media[name] for name in sorted(shown)}
-    copies["assets/plotly.min.js"] = plotly_js()
+    data.update(search_data)
+    copies = {"assets/plotly.min.js": plotly_js()}
     files = {"figures/tree.svg": tree_svg(layout, "../", title=f"Lineage tree of "
                                           f"{atlas.config.title}", standalone=True)}
     files.update(static_maps(atlas, links, mapped))
+    files.update(download_files)
+    if not atlas.profile.kiosk:
+        files.update(downloads.sitemap(atlas.config.base_url, pages))
     nav = [("Lineage tree", "tree.html"), ("Distribution map", "map.html"),
            ("Glossary", "glossary.html"), ("Methods", "methods.html")]
     nav += [(p.title, links.pages[p.name]) for p in atlas.pages]
-    return SitePlan(pages, data, copies, files, links, nav)
+    nav.append(("Search", "search.html"))
+    if not atlas.profile.kiosk:
+        nav.append(("Downloads", "downloads/index.html"))
+    return SitePlan(pages, data, copies, files, links, nav, media)

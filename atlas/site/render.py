@@ -16,6 +16,7 @@ from pathlib import Path
 import jinja2
 
 from ..errors import AtlasError, Problem
+from . import downloads
 from .plan import SitePlan
 from .views import PagePlan, root_of
 
@@ -77,6 +78,7 @@ def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
     template = env.get_template(page.template)
     return template.render(
         page=page.context, root=root, site=site, path=page.path,
+        jsonld=downloads.jsonld(page, site),
         scripts=[root + s for s in page.scripts],
         nav=[{"label": label, "href": root + href, "current": href == page.path}
              for label, href in site.nav],
@@ -85,4 +87,7 @@ def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
 
 def render_site(plan: SitePlan, theme: Theme, site: SiteInfo) -> dict[str, str]:
     env = environment(theme)
-    return {page.path: render_page(env, page, site) for page in plan.pages}
+    html = {page.path: render_page(env, page, site) for page in plan.pages}
+    if site.kiosk:  # nothing leads out of the gallery kiosk
+        html = {path: downloads.unlink_external(text) for path, text in html.items()}
+    return html
