@@ -106,7 +106,7 @@ def tree_svg(layout: list[LayoutNode], root: str, *, highlight: set[int] | None 
 
     parts = [
         f'<svg xmlns="http://www.w3.org/2000/svg" class="tree-svg" viewBox="0 0 {width} {height}"'
-        f' width="{width}" height="{height}" role="img" aria-labelledby="tree-svg-title">',
+        f' width="{width}" height="{height}" role="group" aria-labelledby="tree-svg-title">',
         f'<title id="tree-svg-title">{escape(title)}</title>',
     ]
     if standalone:  # a file of its own: black on white whatever the page's colour scheme
@@ -136,7 +136,9 @@ def tree_svg(layout: list[LayoutNode], root: str, *, highlight: set[int] | None 
             mark = f'<rect x="{x - 3:.1f}" y="{y - 3:.1f}" width="6" height="6"{cls}/>' \
                 + support
         if node.href and not node.withheld:
-            parts.append(f'<a href="{escape(root + node.href)}">{mark}</a>')
+            name = node.label if node.kind == "tip" else f"{node.label} (trait sheet)"
+            parts.append(f'<a href="{escape(root + node.href)}" aria-label="{escape(name)}">'
+                         f"{mark}</a>")
         else:
             parts.append(mark)
     if standalone:
