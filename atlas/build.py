@@ -10,18 +10,20 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from . import __version__
-from .analysis.results import Results, analyse
 from .audit import audit_leaks, audit_links
 from .config import Config, load_config
 from .errors import AtlasError, Problem, Problems
 from .link import link
 from .model import Atlas
-from .site.plan import SitePlan, plan_site
-from .site.render import SiteInfo, find_theme, render_site
 from .site.writer import check_output, write_site
 from .sources.load import load_sources
+
+if TYPE_CHECKING:
+    from .analysis.results import Results
+    from .site.plan import SitePlan
 
 Step = Callable[[str], None]
 
@@ -57,6 +59,9 @@ def load_config_atlas(config: Config, profile: str = "public", step: Step = _qui
 def render(atlas: Atlas, results: Results,
            step: Step = _quiet) -> tuple[SitePlan, dict[str, bytes]]:
     """Plan and render every page; return the plan and all generated files as bytes."""
+    from .site.plan import plan_site
+    from .site.render import SiteInfo, find_theme, render_site
+
     step("Planning pages")
     plan = plan_site(atlas, results)
     theme = find_theme("kiosk" if atlas.profile.kiosk else atlas.config.theme)
@@ -90,6 +95,10 @@ def build(root: Path | str, out: Path | str | None = None, profile: str = "publi
     config = load_config(root)
     check_output(out, config.root)  # refuse a dangerous --out before any work
     atlas = load_config_atlas(config, profile, step)
+    # Imported here: SciPy and the site modules load in seconds, and bad input should be
+    # reported before paying for them.
+    from .analysis.results import analyse
+
     step("Analysing: summary tree, support, parsimony, likelihood")
     results = analyse(atlas)
     plan, files = render(atlas, results, step)

@@ -174,7 +174,8 @@ def test_pages_carry_controls_and_scripts(tmp_path, starter_files, monkeypatch):
                   "Find an object"):
         assert f">{words}</label>" in html
     assert 'aria-live="polite"' in html
-    assert re.search(r"<script(?![^>]*\bsrc=)", html) is None  # no inline script
+    inline = re.search(r'<script(?![^>]*\b(?:src=|type="application/ld\+json"))', html)
+    assert inline is None  # no inline script (JSON-LD is data, not script)
     assert re.search(r"\son[a-z]+=", html) is None  # no inline handler
     scripts = re.findall(r'<script src="([^"]+)"', html)
     assert scripts == ["assets/plotly.min.js", "data/tree.js", "data/states.js",

@@ -130,11 +130,12 @@ def tree_svg(layout: list[LayoutNode], root: str, *, highlight: set[int] | None 
             mark = (f'<circle cx="{x:.1f}" cy="{y:.1f}" r="3"{cls}/>'
                     f'<text x="{x + 7:.1f}" y="{y + 4:.1f}" font-size="12">{text}</text>')
         else:
+            # The support number stands beside the link, so the link's name is its label alone.
             support = "" if node.support is None or node.support >= 0.9995 else \
                 f'<text x="{x - 4:.1f}" y="{y - 4:.1f}" font-size="10" text-anchor="end">' \
                 f"{node.support:.2f}</text>"
-            mark = f'<rect x="{x - 3:.1f}" y="{y - 3:.1f}" width="6" height="6"{cls}/>' \
-                + support
+            mark = f'<rect x="{x - 3:.1f}" y="{y - 3:.1f}" width="6" height="6"{cls}/>'
+            parts.append(support)
         if node.href and not node.withheld:
             name = node.label if node.kind == "tip" else f"{node.label} (trait sheet)"
             parts.append(f'<a href="{escape(root + node.href)}" aria-label="{escape(name)}">'

@@ -367,9 +367,9 @@
     toImageButtonOptions: { format: "svg", filename: "distribution-map" },
   };
 
-  // The plot box is one image to assistive technology (role="img") and the page carries a text
-  // equivalent, so plotly's tool bar buttons are kept out of the tab order: keyboard users go
-  // straight past the figure instead of stepping through unlabelled controls inside an image.
+  // The plot box is a labelled group (role="group": an image role may not hold plotly's tool
+  // bar buttons) and the page carries a text equivalent, so the buttons are kept out of the tab
+  // order: keyboard users go straight past the figure instead of through unlabelled controls.
   function keepOutOfTabOrder(div) {
     var controls = div.querySelectorAll("button, a[href], [tabindex]");
     for (var i = 0; i < controls.length; i++) controls[i].setAttribute("tabindex", "-1");
