@@ -68,6 +68,8 @@ TOP = (
     Option("theme", str, "default", "The theme folder to render with."),
     Option("authors", list, [], "Authors of the atlas, for citations.", check=_string_list),
     Option("base_url", str, "", "Where the site will be published (for sitemap and citations)."),
+    Option("credits", list, [], "Citations and acknowledgements for the credits page, one per "
+           "entry (e.g. the published datasets the atlas is built from).", check=_string_list),
 )
 SOURCES = (
     Option("trees", str, "trees.nex", "Newick or NEXUS: one tree, or a posterior sample."),
@@ -133,6 +135,7 @@ class Config:
     theme: str
     authors: tuple[str, ...]
     base_url: str
+    credits: tuple[str, ...]
     sources: dict[str, str]
     analysis: dict[str, Any]
     columns: dict[str, dict[str, str]]
@@ -334,6 +337,7 @@ def load_config(root: Path | str) -> Config:
         theme=top["theme"],
         authors=tuple(top["authors"]),
         base_url=top["base_url"],
+        credits=tuple(top["credits"]),
         sources=parts["sources"],
         analysis={**parts["analysis"], "burnin": float(parts["analysis"]["burnin"]),
                   "outgroup": tuple(outgroup)},

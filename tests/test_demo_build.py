@@ -84,3 +84,23 @@ def test_the_about_page_says_the_scenario_is_invented(demo_site):
     about = (out / "pages" / "about.html").read_text(encoding="utf-8").lower()
     assert "invented" in about
     assert "loot" in about
+
+
+def test_generalised_find_spots_appear_in_no_output_file(demo_copy, demo_site):
+    out, _ = demo_site
+    rows = (demo_copy / "places.csv").read_text(encoding="utf-8").splitlines()
+    header = rows[0].split(",")
+    generalised = [dict(zip(header, r.split(","))) for r in rows[1:] if ",generalised," in r]
+    assert generalised  # the demo protects a shrine this way
+    for place in generalised:
+        # the exact value as written and as a float would print it, not followed by a digit
+        exact = [re.compile(re.escape(form) + r"(?!\d)") for v in (place["lat"], place["lon"])
+                 for form in {v, repr(float(v))}]
+        for path in out.rglob("*"):
+            # data/basemap.js is the invented islands' outline as given, whose vertices may
+            # share a rounded value with the shrine by chance (-30.8 does)
+            if path.is_file() and path.suffix not in (".png", ".jpg", ".webp") \
+                    and path.name != "basemap.js":
+                text = path.read_text(encoding="utf-8", errors="replace")
+                for pattern in exact:
+                    assert not pattern.search(text), (path, pattern.pattern)

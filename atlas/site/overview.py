@@ -301,6 +301,7 @@ def credits_page(atlas: Atlas, links: Links) -> PagePlan:
     images.sort(key=lambda r: (r["file"], r["of"]))
     return PagePlan("credits.html", "credits.html", {
         "kind": "credits", "title": "Credits", "licence": atlas.config.licence,
+        "credits": list(atlas.config.credits),
         "images": images,
     })
 
