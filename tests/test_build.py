@@ -150,3 +150,27 @@ def test_leak_audit_catches_planted_text():
     # "lamp-2" is found as a whole word, not inside "lamp-21" (invented case)
     assert [(p.file, p.line) for p in problems] == [("data/tree.js", 1), ("index.html", 1)]
     assert audit_leaks({"index.html": b"<p>lamp-21</p>"}, ("lamp-2",)) == []
+
+
+def test_trait_sheet_defining_traits_and_brief(starter):
+    # Invented starter data: spoon-a and spoon-b alone have hooked handles (hook = 1), spoon-c
+    # and spoon-d have none (0) and the rest cannot have one (-), so on the consensus tree the
+    # clade {spoon-a, spoon-b} gains the hook on its stem in every most parsimonious
+    # reconstruction (worked by hand).
+    from atlas.analysis.results import analyse
+    from atlas.build import load
+    from atlas.site.plan import plan_site
+
+    atlas = load(starter)
+    results = analyse(atlas)
+    plan = plan_site(atlas, results)
+    v = results.members.index(("spoon-a", "spoon-b"))
+    page = next(p for p in plan.pages if p.path == f"nodes/{results.ids[v]}.html")
+    defining = {d["label"]: d for d in page.context["defining"]}
+    assert "Hooked handle end" in defining
+    assert defining["Hooked handle end"]["change"] == "absent → present"
+    assert "parsimony: unambiguous" in defining["Hooked handle end"]["evidence"]
+    brief = next(p for p in plan.pages if p.path == f"briefs/{results.ids[v]}.html")
+    listed = [r["label"] for g in brief.context["groups"] for key in ("had", "lacked", "unsure")
+              for r in g[key]]
+    assert sorted(listed) == sorted(c.label for c in atlas.discrete)  # every character once

@@ -18,7 +18,7 @@ from .changes import Changes, expected_changes
 from .consensus import Summary, clade_support, majority_rule, mcc_tree, node_ids, reroot
 from .diagnostics import Diagnostics, diagnose
 from .likelihood import MkFit, ancestral_states, fit_mk, reconstruct_over_sample
-from .parsimony import Indices, Parsimony, fitch, indices
+from .parsimony import Indices, Parsimony, fitch, indices, unambiguous_changes
 from .tree import Tree, clade_masks
 
 
@@ -29,6 +29,7 @@ class Results:
     members: list[tuple[str, ...]]  # sorted tip labels below every node
     parsimony: Parsimony
     indices: Indices  # CI, RI, RC per character and for the whole matrix
+    unambiguous: list[list[tuple[int, int, int]]]  # per node: (char, from, to) on its stem
     fit: MkFit | None  # None when no discrete character varies
     probs: np.ndarray  # (n_nodes, n_discrete, max_k): marginal state probabilities
     prob_trees: np.ndarray  # per node: how many sample trees the probabilities average over
@@ -77,6 +78,7 @@ def analyse(atlas: Atlas) -> Results:
     n_chars = atlas.masks.shape[1]
     parsimony = fitch(tree, atlas.masks, atlas.n_states, atlas.ordered)
     stats = indices(tree, atlas.masks, atlas.n_states, atlas.ordered)
+    certain = unambiguous_changes(tree, parsimony)
     max_k = int(atlas.n_states.max()) if n_chars else 2
     probs = np.zeros((tree.n_nodes, n_chars, max_k))
     prob_trees = np.zeros(tree.n_nodes, dtype=np.int64)
@@ -106,7 +108,7 @@ def analyse(atlas: Atlas) -> Results:
 
         continuous = brownian_ancestors(tree, atlas.continuous)
     diagnostics = diagnose(atlas, tree, changes, probs, masks_by_node, fit is not None)
-    return Results(summary, ids, members, parsimony, stats, fit, probs, prob_trees, changes,
+    return Results(summary, ids, members, parsimony, stats, certain, fit, probs, prob_trees, changes,
                    continuous,
                    diagnostics)
 

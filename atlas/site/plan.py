@@ -143,6 +143,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     for v, nid in enumerate(results.ids):
         if tree.tip[v] < 0:
             pages.append(views.node_page(atlas, results, links, layout, v, notes_by_node))
+            pages.append(views.brief_page(atlas, results, links, v, notes_by_node))
     for c in atlas.characters:
         pages.append(treedata.character_page_plot(
             views.character_page(atlas, results, links, c, notes_by_node), c))

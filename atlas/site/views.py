@@ -356,6 +356,7 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
                              "support": fmt(results.summary.support[c])})
     groups = _reconstruction(atlas, results, links, v, root)
     stem = _stem_changes(atlas, results, links, v, root)
+    defining = defining_traits(atlas, results, links, v, root)
     notes = [{"title": n.title, "body": render_markdown(n.body, root, links.targets)}
              for n in notes_by_node.get(v, [])]
     local = neighbourhood(layout, v)
@@ -378,7 +379,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "contacts": _contacts_of(atlas, links, root, names),
         "children": children,
         "members": _member_chips(atlas, links, root, results.members[v]),
-        "groups": groups, "stem": stem, "notes": notes, "svg": svg,
+        "groups": groups, "stem": stem, "notes": notes, "svg": svg, "defining": defining,
+        "brief": root + brief_path(nid),
         "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
                    for p in places],
         "breadcrumbs": [("Lineage tree", root + "tree.html")],
@@ -420,6 +422,78 @@ def _reconstruction(atlas: Atlas, results: Results, links: Links, v: int, root: 
     for rows in groups.values():
         rows.sort(key=lambda r: -r["certainty"])
     return [{"name": g, "rows": rows} for g, rows in groups.items()]
+
+
+DEFINING_GAIN = 0.8  # expected gains on the stem at least this count as defining
+
+
+def defining_traits(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
+    """The traits that define a clade: changes on its stem that every most parsimonious
+    reconstruction shares (Fitch 1971), and gains of at least ``DEFINING_GAIN`` expected
+    changes under the likelihood model (Minin & Suchard 2008)."""
+    if int(results.tree.parent[v]) < 0:
+        return []
+    discrete = atlas.discrete
+    found: dict[int, dict] = {}
+    for j, a, b in results.unambiguous[v]:
+        c = discrete[j]
+        found[j] = {"label": c.label, "href": root + links.characters[c.id],
+                    "change": f"{c.describe(c.symbols[a])} → {c.describe(c.symbols[b])}",
+                    "evidence": "parsimony: unambiguous"}
+    if results.changes is not None:
+        for c in discrete:
+            gain = float(results.changes.gains[v, c.column])
+            if np.isfinite(gain) and gain >= DEFINING_GAIN:
+                entry = found.setdefault(c.column, {
+                    "label": c.label, "href": root + links.characters[c.id],
+                    "change": f"gained: {c.describe(c.symbols[1])}", "evidence": ""})
+                entry["evidence"] = "; ".join(filter(None, [
+                    entry["evidence"], f"likelihood: {gain:.2f} expected gains"]))
+    return [found[j] for j in sorted(found, key=lambda j: discrete[j].label)]
+
+
+def brief_path(nid: str) -> str:
+    return f"briefs/{nid}.html"
+
+
+def brief_page(atlas: Atlas, results: Results, links: Links, v: int, notes_by_node) -> PagePlan:
+    """A printable one-page view of an ancestor for an illustrator: the traits it most
+    probably had and lacked, by group, with the glossary's descriptions and images."""
+    nid = results.ids[v]
+    path = brief_path(nid)
+    root = root_of(path)
+    title = node_title(atlas, results, v, notes_by_node)
+    groups: dict[str, dict[str, list]] = defaultdict(lambda: {"had": [], "lacked": [],
+                                                              "unsure": []})
+    for c in atlas.discrete:
+        k = len(c.symbols)
+        if results.fit is not None:
+            probs = results.probs[v, c.column, :k]
+            best = int(np.argmax(probs))
+            p = float(probs[best])
+        else:
+            mask = int(results.parsimony.states[v, c.column])
+            best, p = (mask.bit_length() - 1, 1.0) if mask and not mask & (mask - 1) else (0, 0.0)
+        image = None
+        if c.image is not None:
+            image = {"src": root + "media/" + c.image.file, "alt": c.image.alt}
+        row = {"label": c.label, "state": c.describe(c.symbols[best]), "p": fmt(p),
+               "href": root + links.characters[c.id], "image": image}
+        if p < UNCERTAIN:
+            groups[c.group]["unsure"].append(row)
+        elif k == 2 and best == 0 and c.descriptions[0].lower() in ("absent", "no", "none"):
+            groups[c.group]["lacked"].append(row)
+        else:
+            groups[c.group]["had"].append(row)
+    return PagePlan(path, "brief.html", {
+        "kind": "brief", "title": f"Reconstruction brief: {title}",
+        "node": {"title": title, "href": root + links.nodes[nid],
+                 "support": fmt(results.summary.support[v]),
+                 "members": len(results.members[v])},
+        "groups": [{"name": g, **rows} for g, rows in groups.items()],
+        "threshold": fmt(UNCERTAIN),
+        "breadcrumbs": [("Lineage tree", root + "tree.html"), (title, root + links.nodes[nid])],
+    })
 
 
 def _stem_changes(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
