@@ -108,8 +108,8 @@ def analyse(atlas: Atlas) -> Results:
 
         continuous = brownian_ancestors(tree, atlas.continuous)
     diagnostics = diagnose(atlas, tree, changes, probs, masks_by_node, fit is not None)
-    return Results(summary, ids, members, parsimony, stats, certain, fit, probs, prob_trees, changes,
-                   continuous,
+    return Results(summary, ids, members, parsimony, stats, certain, fit, probs, prob_trees,
+                   changes, continuous,
                    diagnostics)
 
 
