@@ -129,10 +129,12 @@ def _where(place) -> str:
     return f"{fmt(place.lat, 4)}, {fmt(place.lon, 4)}"
 
 
-def map_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
+def map_page(atlas: Atlas, results: Results, links: Links,
+             legend: list[tuple[int, str]] = ()) -> PagePlan:
     rows, unplaced = _place_rows(atlas, links)
     return PagePlan("map.html", "map.html", {
         "kind": "map", "title": "Distribution map", "places": rows, "unplaced": unplaced,
+        "legend": [{"index": k, "title": t} for k, t in legend],
         "has_generalised": any(p.precision == "generalised" for p in atlas.places.values()),
     }, scripts=MAP_SCRIPTS)
 

@@ -53,7 +53,29 @@ def world_js() -> str:
             f"window.PlotlyGeoAssets.topojson[\"world_110m\"] = {outlines.strip()};\n")
 
 
-def places_data(atlas: Atlas, links: Links, results: Results) -> list[dict]:
+def lineage_colours(atlas: Atlas, results: Results, notes_by_node) -> tuple[dict[str, int], list]:
+    """A colour index (0-7) per object: its lineage, taken from the clade notes (the smallest
+    noted clade holding it), or else from the clades just below the root. Returns the index per
+    object id and the legend as (index, title) pairs."""
+    tree = results.tree
+    if notes_by_node:
+        groups = [(v, notes[0].title) for v, notes in sorted(notes_by_node.items())
+                  if v != tree.root]
+    else:
+        groups = [(int(c), views.node_title(atlas, results, int(c), notes_by_node))
+                  for c in tree.children(tree.root) if tree.tip[int(c)] < 0]
+    groups = groups[:8]
+    colour: dict[str, int] = {}
+    # Larger clades first, so a smaller clade inside one takes its members over.
+    for k, (v, _) in sorted(enumerate(groups), key=lambda kv: -len(results.members[kv[1][0]])):
+        for m in results.members[v]:
+            colour[m] = k
+    legend = [(k, title) for k, (_, title) in enumerate(groups)]
+    return colour, legend
+
+
+def places_data(atlas: Atlas, links: Links, results: Results,
+                colours: dict[str, int] | None = None) -> list[dict]:
     by_place: dict[str, list] = {}
     for obj in atlas.visible_objects():
         if obj.place:
@@ -67,7 +89,7 @@ def places_data(atlas: Atlas, links: Links, results: Results) -> list[dict]:
             "id": pid, "name": place.name, "lat": place.lat, "lon": place.lon,
             "href": links.places[pid], "precision": place.precision,
             "objects": [{"id": o.id, "title": o.title, "href": links.objects[o.id],
-                         "clade_colour": None} for o in objs],
+                         "clade_colour": (colours or {}).get(o.id)} for o in objs],
         })
     return out
 
@@ -129,11 +151,12 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     layout, use_lengths = tree_layout(tree, results.ids, labels, hrefs, results.summary.support,
                                       withheld)
 
+    colours, legend = lineage_colours(atlas, results, notes_by_node)
     pages: list[PagePlan] = [
         overview.home_page(atlas, results, links, notes_by_node),
         treedata.tree_page_plot(
             overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas),
-        overview.map_page(atlas, results, links),
+        overview.map_page(atlas, results, links, legend),
         views.glossary_page(atlas, results, links),
         overview.methods_page(atlas, results, links, notes_by_node),
         overview.credits_page(atlas, links),
@@ -142,7 +165,10 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         pages.append(views.object_page(atlas, results, links, layout, obj, notes_by_node))
     for v, nid in enumerate(results.ids):
         if tree.tip[v] < 0:
-            pages.append(views.node_page(atlas, results, links, layout, v, notes_by_node))
+            node = views.node_page(atlas, results, links, layout, v, notes_by_node)
+            if node.context["place_ids"]:  # a map of the clade's places
+                node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
+            pages.append(node)
             pages.append(views.brief_page(atlas, results, links, v, notes_by_node))
     for c in atlas.characters:
         pages.append(treedata.character_page_plot(
@@ -164,7 +190,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     media, variants = images.publish_images(atlas)
     pages = [images.with_srcset(p, variants) for p in pages]
 
-    mapped = places_data(atlas, links, results)
+    mapped = places_data(atlas, links, results, colours)
     data = {
         "data/tree.js": js_global("tree", overview.layout_data(
             layout, use_lengths, atlas.config.analysis["outgroup"])),

@@ -228,6 +228,10 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
     images = [{"src": root + "media/" + im.file, "alt": im.alt, "credit": im.credit,
                "licence": im.licence, "caption": im.caption} for im in obj.images]
     diagnostics = _object_diagnostics(atlas, results, links, obj, v, root, notes_by_node)
+    static_map = ""
+    if place is not None and place.has_coordinates and place.precision != "withheld":
+        static_map = root + "figures/places/" + links.places[place.id].rsplit("/", 1)[1][:-5] \
+            + ".svg"
     return PagePlan(path, "object.html", {
         "kind": "object", "title": obj.title, "object": {"id": obj.id, "title": obj.title},
         "facts": facts, "location": location, "images": images,
@@ -235,7 +239,7 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
         "has_note": obj.has_note, "has_row": obj.has_row,
         "groups": [{"name": g, "rows": rows} for g, rows in groups.items()],
         "ancestors": ancestors, "svg": svg,
-        "sources": list(obj.sources), "diagnostics": diagnostics,
+        "sources": list(obj.sources), "diagnostics": diagnostics, "static_map": static_map,
         "contacts": _contacts_of(atlas, links, root, {obj.id}),
         "breadcrumbs": [("Lineage tree", root + "tree.html")],
     })
@@ -383,6 +387,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "brief": root + brief_path(nid),
         "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
                    for p in places],
+        "place_ids": " ".join(p for p in places if atlas.places[p].has_coordinates
+                              and atlas.places[p].precision != "withheld"),
         "breadcrumbs": [("Lineage tree", root + "tree.html")],
         "uncertain_threshold": fmt(UNCERTAIN),
     })
