@@ -51,20 +51,6 @@ def data_value(script: str, name: str):
     return json.loads(match.group(1))
 
 
-def plan_with_tree(a, r):
-    """The site plan with this module hooked in, as plan.py is to do it."""
-    plan = plan_site(a, r)
-    by_path = {plan.links.characters[c.id]: c for c in a.characters}
-    pages = []
-    for page in plan.pages:
-        if page.template == "tree.html":
-            page = treedata.tree_page_plot(page, a)
-        elif page.template == "character.html":
-            page = treedata.character_page_plot(page, by_path[page.path])
-        pages.append(page)
-    return replace(plan, pages=pages, data={**plan.data, **treedata.data_files(a, r)})
-
-
 @pytest.fixture(scope="module")
 def spoons(tmp_path_factory):
     from atlas.starter import FILES
@@ -137,7 +123,7 @@ def test_withheld_object_is_in_no_data_file(tmp_path, starter_files):
     folder = write_atlas(tmp_path / "src", _files(starter_files, restricted="spoon-b"))
     a = load(folder)
     r = analyse(a)
-    plan = plan_with_tree(a, r)
+    plan = plan_site(a, r)  # with the tree data files hooked in
     title = "Spoon with hooked handle and plain rim"
     assert title in starter_files["objects/spoon-b.md"]  # the title we must not see
     for name in ("data/tree.js", "data/states.js", "data/contacts.js"):
@@ -161,11 +147,10 @@ def test_check_character_ids_lists_every_unknown_id(spoons):
     assert "bowl" in hints["unknown discrete character 'bowel'"]
 
 
-def test_pages_carry_controls_and_scripts(tmp_path, starter_files, monkeypatch):
+def test_pages_carry_controls_and_scripts(tmp_path, starter_files):
     folder = write_atlas(tmp_path / "src", _files(starter_files))
     out = tmp_path / "site"
-    monkeypatch.setattr(atlas.build, "plan_site", plan_with_tree)
-    atlas.build.build(folder, out)
+    atlas.build.build(folder, out)  # plan_site adds the tree controls and data files
     html = (out / "tree.html").read_text()
     # every form control has a label naming it, in our own words
     for control in re.findall(r'<(?:select|input)[^>]*\bid="([^"]+)"', html):

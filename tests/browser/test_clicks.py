@@ -11,6 +11,7 @@ from __future__ import annotations
 import re
 
 import pytest
+from playwright.sync_api import TimeoutError as PlaywrightTimeout
 
 from .conftest import url_for
 
@@ -48,10 +49,19 @@ def click_point(tab, plot_id: str, pattern: str) -> str:
     assert chosen, f"no marker in #{plot_id} links to {pattern}: {points}"
     point = chosen[len(chosen) // 2]
     x, y = tab.page.evaluate(_CENTRE, [plot_id, point["trace"], point["i"]])
-    tab.page.mouse.move(x, y)
-    tab.page.wait_for_timeout(100)  # plotly picks the hovered point before the click
-    with tab.page.expect_navigation(timeout=10_000):
-        tab.page.mouse.click(x, y)
+    # plotly picks the hovered point before the click; on a loaded machine that can take a
+    # while, so the hover and click are tried again (a real failure fails all three times)
+    for attempt in range(3):
+        tab.page.mouse.move(x - 1, y)
+        tab.page.mouse.move(x, y)
+        tab.page.wait_for_timeout(150 * (attempt + 1))
+        try:
+            with tab.page.expect_navigation(timeout=8_000):
+                tab.page.mouse.click(x, y)
+            return point["href"]
+        except PlaywrightTimeout:
+            if attempt == 2:
+                raise
     return point["href"]
 
 

@@ -11,14 +11,12 @@ from __future__ import annotations
 
 import os
 import re
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
 
 import atlas.build
-from atlas.site import treedata
-from atlas.site.plan import plan_site
 from atlas.starter import FILES as STARTER
 
 from ..conftest import write_atlas
@@ -30,19 +28,6 @@ CONTACTS = "from,to,characters,note\nspoon-c,hooked,hook,Copied the hook (invent
 STATE_RGB = {"rgba(230,159,0,", "rgba(86,180,233,"}
 
 
-def _plan_with_tree(a, r):
-    plan = plan_site(a, r)
-    by_path = {plan.links.characters[c.id]: c for c in a.characters}
-    pages = []
-    for page in plan.pages:
-        if page.template == "tree.html":
-            page = treedata.tree_page_plot(page, a)
-        elif page.template == "character.html":
-            page = treedata.character_page_plot(page, by_path[page.path])
-        pages.append(page)
-    return replace(plan, pages=pages, data={**plan.data, **treedata.data_files(a, r)})
-
-
 @pytest.fixture(scope="module")
 def tree_site(tmp_path_factory):
     files = dict(STARTER)
@@ -52,9 +37,7 @@ def tree_site(tmp_path_factory):
     folder = tmp_path_factory.mktemp("tree-site")
     source = write_atlas(folder / "src", files)
     out = folder / "site"
-    with pytest.MonkeyPatch.context() as patch:
-        patch.setattr(atlas.build, "plan_site", _plan_with_tree)
-        atlas.build.build(source, out)
+    atlas.build.build(source, out)  # plan_site adds the tree controls and data files
     return out
 
 
