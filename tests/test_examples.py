@@ -1,7 +1,7 @@
 """The published Semitic dataset, used as it is, links and analyses cleanly.
 
 Dataset: Kitchen, Ehret, Assefa & Mulligan (2009), Proc. R. Soc. B 276: 2703-2710, as
-packaged by Phlorest (doi:10.5281/zenodo.8250115), CC-BY-4.0 (examples/…/data/SOURCE.md).
+packaged by Phlorest (doi:10.5281/zenodo.8250115), CC-BY-4.0 (examples/…/data/CITATION.md).
 """
 
 from __future__ import annotations

@@ -428,9 +428,9 @@ def unlink_external(html: str) -> str:
     """The page with every link that leaves the site (another site, ``mailto:``, a download)
     turned into its plain text, for the gallery kiosk.
 
-    >>> unlink_external('<a href="https://x.example/">a <b>site</b></a>, '
+    >>> unlink_external('<a href="mailto:curator@example.org">write <b>to us</b></a>, '
     ...                 '<a href="objects/a.html">a page</a>')
-    '<span class="kiosk-unlinked">a <b>site</b></span>, <a href="objects/a.html">a page</a>'
+    '<span class="kiosk-unlinked">write <b>to us</b></span>, <a href="objects/a.html">a page</a>'
     """
     return _LEAVING_LINK.sub(r'<span class="kiosk-unlinked">\1</span>', html)
 
