@@ -116,6 +116,19 @@ def test_gazetteer_geojson_points_and_polygons(tmp_path):
     # centroid of the unit-2 square is (1, 1): closed form
     assert (by_id["b"].lon, by_id["b"].lat) == (1.0, 1.0)
     assert "outside the globe" in problems.errors[0].message
+    assert problems.errors[0].line == 1  # json.dumps writes one line: the feature's line
+
+
+def test_geojson_problems_name_the_line_of_their_feature(tmp_path):
+    text = ('{"type": "FeatureCollection", "features": [\n'
+            ' {"type": "Feature", "geometry": {"type": "Point", "coordinates": [1, 2]},\n'
+            '  "properties": {"id": "a"}},\n'
+            ' {"type": "Feature", "geometry": {"type": "Point", "coordinates": [1, 95]},\n'
+            '  "properties": {"id": "b", "precision": "nearby"}}\n]}\n')
+    problems = Problems()
+    read_gazetteer(_write(tmp_path, "g.geojson", text), "g.geojson", problems)
+    # invented case: feature 2 starts on line 4
+    assert sorted(p.line for p in problems.errors) == [4, 4]
 
 
 # --- notes -------------------------------------------------------------------------------

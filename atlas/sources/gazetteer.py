@@ -12,6 +12,7 @@ import csv
 import io
 import json
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -143,23 +144,30 @@ def _read_geojson(text: str, shown: str, problems: Problems) -> list[Place]:
         return []
     places: list[Place] = []
     seen: set[str] = set()
+    # The line each feature starts on, for messages: the n-th `"type": "Feature"` in the text
+    # (given up on when a property also says "Feature" and the counts differ).
+    starts = [text.count("\n", 0, m.start()) + 1
+              for m in re.finditer(r'"type"\s*:\s*"Feature"', text)]
+    if len(starts) != len(data["features"]):
+        starts = [None] * len(data["features"])
     for n, feature in enumerate(data["features"], 1):
         where = f"feature {n}"
+        line = starts[n - 1]
         props = feature.get("properties") if isinstance(feature, dict) else None
         geometry = feature.get("geometry") if isinstance(feature, dict) else None
         if not isinstance(props, dict):
-            problems.error(shown, None, f"{where} has no properties")
+            problems.error(shown, line, f"{where} has no properties")
             continue
         record = {k: str(props[k]) if props.get(k) is not None else "" for k in KEYS}
         if not record["id"] and feature.get("id") is not None:
             record["id"] = str(feature["id"])
         localised = {k.split("@", 1)[1]: str(v) for k, v in props.items()
                      if isinstance(k, str) and "@" in k and v}
-        common = _common(record, shown, None, problems, localised)
+        common = _common(record, shown, line, problems, localised)
         if common is None:
             continue
         if common["id"] in seen:
-            problems.error(shown, None, f"place {common['id']!r} is listed twice")
+            problems.error(shown, line, f"place {common['id']!r} is listed twice")
             continue
         seen.add(common["id"])
         lat = lon = None
@@ -173,10 +181,10 @@ def _read_geojson(text: str, shown: str, problems: Problems) -> list[Place]:
                 polygon = tuple(tuple(_position(p) for p in ring) for ring in coords)
                 lon, lat = _ring_centroid(polygon[0])
             elif geometry is not None:
-                problems.error(shown, None, f"{where} ({common['id']}): geometry {kind!r} is not "
+                problems.error(shown, line, f"{where} ({common['id']}): geometry {kind!r} is not "
                                "a Point or Polygon")
         except (TypeError, ValueError, IndexError) as exc:
-            problems.error(shown, None, f"{where} ({common['id']}): {exc}")
+            problems.error(shown, line, f"{where} ({common['id']}): {exc}")
             continue
         places.append(Place(lat=lat, lon=lon, polygon=polygon, **common))
     return places
