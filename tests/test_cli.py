@@ -72,3 +72,26 @@ def test_preview_serves_once(starter, tmp_path, monkeypatch):
     result = run("preview", str(starter), "--out", "site", "--port", "0", "--once")
     assert result.exit_code == 0, result.output
     assert "Serving http://127.0.0.1:" in result.output
+
+
+def test_preview_rebuilds_when_a_source_changes(starter, tmp_path):
+    import threading
+
+    from atlas.preview import serve
+
+    said: list[str] = []
+    note = starter / "pages" / "about.md"
+
+    def edit() -> None:  # after the first build, while the preview waits for changes
+        while not any(m.startswith("Serving") for m in said):
+            threading.Event().wait(0.05)
+        note.write_text(note.read_text(encoding="utf-8") + "\nA new line (invented).\n",
+                        encoding="utf-8")
+
+    editor = threading.Thread(target=edit)
+    editor.start()
+    serve(starter, tmp_path / "site", "public", 0, once=True, say=said.append, poll=1.5)
+    editor.join()
+    assert "Source changed; rebuilding." in said
+    assert sum(m.startswith("Built") for m in said) == 2  # the first build and the rebuild
+    assert "A new line (invented)." in (tmp_path / "site" / "pages" / "about.html").read_text()
