@@ -104,3 +104,13 @@ def test_generalised_find_spots_appear_in_no_output_file(demo_copy, demo_site):
                 text = path.read_text(encoding="utf-8", errors="replace")
                 for pattern in exact:
                     assert not pattern.search(text), (path, pattern.pattern)
+
+
+def test_about_this_data_carries_the_cautions(demo_site):
+    out, _ = demo_site
+    text = (out / "about-data.html").read_text(encoding="utf-8")
+    assert "2 objects are part of the analysis but not shown" in text  # the demo withholds 2
+    for caution in ("invite looting", "restricted by the community",
+                    "do not replace community protocols, local heritage law"):
+        assert caution in text
+    assert 'href="about-data.html"' in (out / "index.html").read_text(encoding="utf-8")

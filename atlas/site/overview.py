@@ -308,6 +308,21 @@ def credits_page(atlas: Atlas, links: Links) -> PagePlan:
     })
 
 
+def data_page(atlas: Atlas, links: Links) -> PagePlan:
+    """"About this data": what the published atlas leaves out, and the cautions that go with
+    publishing find-spots and community material."""
+    objects = atlas.objects.values()
+    generalised = sorted(p.name for p in atlas.places.values() if p.precision == "generalised")
+    withheld_places = sum(1 for p in atlas.places.values() if p.precision == "withheld")
+    return PagePlan("about-data.html", "about-data.html", {
+        "kind": "about-data", "title": "About this data",
+        "profile": atlas.profile.name, "levels": list(atlas.profile.access),
+        "withheld": sum(1 for o in objects if o.withheld),
+        "generalised": generalised, "withheld_places": withheld_places,
+        "licence": atlas.config.licence,
+    })
+
+
 def free_page(atlas: Atlas, links: Links, page) -> PagePlan:
     path = links.pages[page.name]
     return PagePlan(path, "page.html", {

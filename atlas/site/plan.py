@@ -160,6 +160,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         views.glossary_page(atlas, results, links),
         overview.methods_page(atlas, results, links, notes_by_node),
         overview.credits_page(atlas, links),
+        overview.data_page(atlas, links),
     ]
     for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):
         pages.append(views.object_page(atlas, results, links, layout, obj, notes_by_node))
