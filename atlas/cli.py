@@ -16,7 +16,7 @@ from pathlib import Path
 import click
 from rich.console import Console
 
-from .errors import EXIT_INPUT, AtlasError, Problem
+from .errors import AtlasError, Problem
 
 err = Console(stderr=True, highlight=False, soft_wrap=True)
 
@@ -186,5 +186,3 @@ def preview(directory: Path, out: Path, profile: str, port: int, once: bool) -> 
 if __name__ == "__main__":  # pragma: no cover
     main(prog_name=os.path.basename(sys.argv[0]) or "atlas")
 
-
-__all__ = ["main", "EXIT_INPUT"]

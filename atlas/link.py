@@ -20,7 +20,7 @@ from typing import Any
 
 import numpy as np
 
-from .config import ACCESS_LEVELS, Config, Profile
+from .config import ACCESS_LEVELS, Profile
 from .errors import AtlasError, Problems, did_you_mean
 from .model import ArtObject, Atlas, Character, CladeNote, Image, Page
 from .sources.gazetteer import Place
@@ -572,7 +572,3 @@ def _pages(sources: Sources, profile: Profile, problems: Problems) -> tuple[Page
         out.append(Page(slug(note.stem), str(note.meta.get("title") or note.stem.title()),
                         note.body, order))
     return tuple(sorted(out, key=lambda p: (p.order, p.name)))
-
-
-def profile_for(config: Config, name: str) -> Profile:
-    return config.profile(name)
