@@ -58,7 +58,11 @@ def environment(theme: Theme) -> jinja2.Environment:
         trim_blocks=True,
         lstrip_blocks=True,
         keep_trailing_newline=True,
+        extensions=["jinja2.ext.i18n"],
     )
+    # Interface strings are marked with _() and {% trans %}; until a catalogue is chosen they
+    # pass through unchanged.
+    env.install_null_translations(newstyle=True)
     return env
 
 
