@@ -17,8 +17,8 @@ from dataclasses import replace
 import dendropy
 import pytest
 
-import atlas.build
 from atlas.analysis.results import analyse
+from atlas.build import build as build_site
 from atlas.build import load
 from atlas.errors import AtlasError
 from atlas.site import treedata
@@ -150,7 +150,7 @@ def test_check_character_ids_lists_every_unknown_id(spoons):
 def test_pages_carry_controls_and_scripts(tmp_path, starter_files):
     folder = write_atlas(tmp_path / "src", _files(starter_files))
     out = tmp_path / "site"
-    atlas.build.build(folder, out)  # plan_site adds the tree controls and data files
+    build_site(folder, out)  # plan_site adds the tree controls and data files
     html = (out / "tree.html").read_text()
     # every form control has a label naming it, in our own words
     for control in re.findall(r'<(?:select|input)[^>]*\bid="([^"]+)"', html):

@@ -10,13 +10,20 @@ harmlessly, if the plan already does). What the reader sees is read from plotly'
 from __future__ import annotations
 
 import os
+import random
 import re
+import shutil
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pytest
 
-import atlas.build
+from atlas.build import build as build_site
+from atlas.site.figures import tree_layout
+from atlas.site.overview import layout_data
+from atlas.site.plan import js_global, plotly_js
+from atlas.sources.trees import parse_newick
 from atlas.starter import FILES as STARTER
 
 from ..conftest import write_atlas
@@ -37,7 +44,7 @@ def tree_site(tmp_path_factory):
     folder = tmp_path_factory.mktemp("tree-site")
     source = write_atlas(folder / "src", files)
     out = folder / "site"
-    atlas.build.build(source, out)  # plan_site adds the tree controls and data files
+    build_site(source, out)  # plan_site adds the tree controls and data files
     return out
 
 
@@ -227,5 +234,126 @@ def test_without_javascript_the_static_figure_and_no_controls(browser, tree_site
         page.goto((tree_site / "tree.html").as_uri())
         assert not page.is_visible("#tree-controls")
         assert page.is_visible(".plot-fallback img")
+    finally:
+        context.close()
+
+
+# ---- A large tree: tips and forks drawn without an element per point -------------------------
+
+LARGE_TIPS = 400  # above tree.js's MANY_TIPS (300)
+THEME_TREE_JS = Path(__file__).resolve().parents[2] / "themes" / "default" / "assets" / "tree.js"
+LARGE_PAGE = """<!doctype html>
+<html lang="en"><head><meta charset="utf-8"><title>Large tree (invented)</title></head>
+<body data-root=""><figure><div id="lineage-tree" style="height:600px"></div></figure>
+<script src="plotly.min.js"></script><script src="tree-data.js"></script>
+<script src="tree-view.js"></script></body></html>
+"""
+
+
+@pytest.fixture(scope="module")
+def large_tree(tmp_path_factory):
+    """A page with an invented random tree of 400 tips (random pairs joined, seeded) and
+    a stub page behind every link, drawn by the theme's tree.js."""
+    rng = random.Random(5)
+    parts = [f"t{i:03d}" for i in range(LARGE_TIPS)]
+    while len(parts) > 1:
+        a = parts.pop(rng.randrange(len(parts)))
+        b = parts.pop(rng.randrange(len(parts)))
+        parts.append(f"({a}:{rng.random():.3f},{b}:{rng.random():.3f})")
+    tree = parse_newick(parts[0] + ";")
+    ids = [tree.taxa[tree.tip[v]] if tree.tip[v] >= 0 else f"n-{v:010x}"
+           for v in range(tree.n_nodes)]
+    hrefs = [f"objects/{i}.html" if i.startswith("t") else f"nodes/{i}.html" for i in ids]
+    labels = [f"Invented object {i}" if i.startswith("t") else "Clade" for i in ids]
+    support = [float("nan") if i.startswith("t") else 0.9 for i in ids]
+    layout, use_lengths = tree_layout(tree, ids, labels, hrefs, np.array(support))
+    folder = tmp_path_factory.mktemp("large-tree")
+    (folder / "tree-data.js").write_text(js_global("tree", layout_data(layout, use_lengths, [])))
+    shutil.copy(plotly_js(), folder / "plotly.min.js")
+    shutil.copy(THEME_TREE_JS, folder / "tree-view.js")
+    (folder / "tree.html").write_text(LARGE_PAGE)
+    for sub in ("objects", "nodes"):
+        (folder / sub).mkdir()
+    for href in hrefs:
+        (folder / href).write_text(f'<!doctype html><title>{href}</title><body class="stub">')
+    return folder
+
+
+# The pixel position of point i of the trace tagged `meta`, from plotly's axis scales.
+_POINT_AT = """([meta, i]) => {
+  const gd = document.getElementById('lineage-tree');
+  const t = gd.data.find((tr) => tr.meta === meta);
+  const full = gd._fullLayout;
+  const at = () => {
+    const box = gd.getBoundingClientRect();
+    return [box.left + full._size.l + full.xaxis.l2p(t.x[i]),
+            box.top + full._size.t + full.yaxis.l2p(t.y[i])];
+  };
+  window.scrollBy({top: at()[1] - window.innerHeight / 2, behavior: 'instant'});
+  return {xy: at(), href: t.customdata[i]};
+}"""
+
+# The radius in pixels of the first disc of the tips' link-coloured shape (the largest shape
+# whose fill is not none), from the first vertex of its path and the tip it surrounds.
+_DISC_RADIUS = """() => {
+  const gd = document.getElementById('lineage-tree');
+  const full = gd._fullLayout;
+  const tips = gd.data.find((t) => t.meta === 'tips');
+  const discs = gd.layout.shapes.filter((s) => s.fillcolor).sort(
+    (a, b) => b.path.length - a.path.length)[0];
+  const first = discs.path.split('Z')[0].slice(1).split('L').map((p) => p.split(',').map(Number));
+  const cx = first.reduce((s, p) => s + p[0], 0) / first.length;
+  const cy = first.reduce((s, p) => s + p[1], 0) / first.length;
+  const dx = (first[0][0] - cx) * full.xaxis._m;
+  const dy = (first[0][1] - cy) * full.yaxis._m;
+  return {r: Math.hypot(dx, dy), discs: discs.path.split('Z').length - 1,
+          tips: tips.x.length, modes: gd.data.filter((t) => t.meta === 'tips' ||
+          t.meta === 'nodes').map((t) => t.mode),
+          points: gd.querySelectorAll('.scatterlayer path.point').length};
+}"""
+
+
+def test_large_tree_draws_tips_as_one_shape_and_still_answers(browser, large_tree):
+    context = browser.new_context(viewport={"width": 1200, "height": 900})
+    errors: list[str] = []
+    try:
+        page = context.new_page()
+        page.on("pageerror", lambda exc: errors.append(str(exc)))
+        page.goto((large_tree / "tree.html").as_uri())
+        page.wait_for_selector("figure.has-plot", timeout=30_000)
+        info = page.evaluate(_DISC_RADIUS)
+        # tips and forks answer hover and clicks without markers; the discs are one shape
+        assert info["modes"] == ["none", "none"] and info["tips"] == LARGE_TIPS
+        assert info["discs"] == LARGE_TIPS and info["points"] == 0
+        # 4.25 px: the radius of a size-7 marker with its 1.5 px outline (tree.js)
+        assert abs(info["r"] - 4.25) < 0.5
+        point = page.evaluate(_POINT_AT, ["tips", 7])
+        page.mouse.move(point["xy"][0] - 30, point["xy"][1] - 30)
+        page.mouse.move(*point["xy"])
+        page.wait_for_selector("#lineage-tree .hoverlayer .hovertext", timeout=10_000)
+        assert "Invented object" in page.text_content("#lineage-tree .hoverlayer")
+        page.wait_for_timeout(150)
+        with page.expect_navigation(timeout=10_000):
+            page.mouse.click(*point["xy"])
+        assert page.url == (large_tree / point["href"]).as_uri()
+        page.go_back()
+        page.wait_for_selector("figure.has-plot", timeout=30_000)
+        point = page.evaluate(_POINT_AT, ["nodes", 5])
+        page.mouse.move(point["xy"][0] + 20, point["xy"][1])
+        page.mouse.move(*point["xy"])
+        page.wait_for_timeout(150)
+        with page.expect_navigation(timeout=10_000):
+            page.mouse.click(*point["xy"])
+        assert page.url == (large_tree / point["href"]).as_uri()
+        page.go_back()
+        page.wait_for_selector("figure.has-plot", timeout=30_000)
+        # a zoom redraws the discs at the same size in pixels
+        page.evaluate("""async () => { const gd = document.getElementById('lineage-tree');
+          const r = gd.layout.xaxis.range; const y = gd.layout.yaxis.range;
+          await Plotly.relayout(gd, {'xaxis.range': [r[0], (r[0] + r[1]) / 3],
+                                     'yaxis.range': [y[0] / 4, y[1]]}); }""")
+        page.wait_for_timeout(500)
+        assert abs(page.evaluate(_DISC_RADIUS)["r"] - 4.25) < 0.5
+        assert errors == []
     finally:
         context.close()

@@ -41,7 +41,8 @@
   var LABEL_CHAR_PX = 7.2; // rough width of one label character at 12 px, for the margin
   var PAPER_WIDTH_PX = 660; // printed width: A4 or US Letter less margins, at 96 px per inch
   var PAPER_MAX_HEIGHT_PX = 900; // one printed page
-  var MANY_TIPS = 300; // above this, tip labels are left to the hover box on screen
+  var MANY_TIPS = 300; // above this, on screen: names in the hover box, tips as one shape of
+  // discs, forks without markers (see nodeMarkers in buildFigure)
 
   // Okabe & Ito (2008): orange, sky blue, bluish green, yellow, blue, vermillion, reddish
   // purple, then grey for anything beyond seven states.
@@ -185,8 +186,15 @@
     }
     var equalX = new Float64Array(n);
     for (i = 0; i < n; i++) equalX[i] = height[root] - height[i];
+    // Children of each node, in index order: kids[first[v] .. first[v + 1]).
+    var first = new Int32Array(n + 1);
+    for (i = 0; i < n; i++) if (nodes[i].parent >= 0) first[nodes[i].parent + 1]++;
+    for (i = 0; i < n; i++) first[i + 1] += first[i];
+    var fill = first.slice(0, n);
+    var kids = new Int32Array(Math.max(n - 1, 0));
+    for (i = 0; i < n; i++) if (nodes[i].parent >= 0) kids[fill[nodes[i].parent]++] = i;
     return { n: n, root: root, tips: tips, inner: inner, equalX: equalX, minY: minY, maxY: maxY,
-      count: count, height: height };
+      count: count, height: height, first: first, kids: kids };
   }
 
   // Topmost clades below the support threshold (collapsed) and everything under them (hidden).
@@ -359,26 +367,174 @@
       if (radial) return [R(d) * Math.cos(angle(y)), R(d) * Math.sin(angle(y))];
       return [age ? maxDepth - d : d, y];
     }
-    // A branch: parent p to child c (elbow, or arc at the parent's radius then a ray).
-    function branch(p, c, xs, ys) {
+    // The branch from parent p to child c (an elbow, or an arc at the parent's radius then a
+    // ray), pushed without its first point; `back` walks it from c to p instead, without c.
+    function walk(p, c, xs, ys, back) {
       if (!radial) {
-        xs.push(X[p], X[p], X[c], null);
-        ys.push(Y[p], Y[c], Y[c], null);
+        if (back) {
+          xs.push(X[p], X[p]);
+          ys.push(Y[c], Y[p]);
+        } else {
+          xs.push(X[p], X[c]);
+          ys.push(Y[c], Y[c]);
+        }
         return;
       }
       var a0 = angle(nodes[p].y);
       var a1 = angle(nodes[c].y);
       var steps = Math.max(1, Math.ceil(Math.abs(a1 - a0) / 0.06));
-      for (var s = 0; s <= steps; s++) {
-        var a = a0 + ((a1 - a0) * s) / steps;
-        xs.push(depth[p] * Math.cos(a));
-        ys.push(depth[p] * Math.sin(a));
+      var s;
+      if (!back) {
+        for (s = 1; s <= steps; s++) {
+          xs.push(depth[p] * Math.cos(a0 + ((a1 - a0) * s) / steps));
+          ys.push(depth[p] * Math.sin(a0 + ((a1 - a0) * s) / steps));
+        }
+        xs.push(X[c]);
+        ys.push(Y[c]);
+        return;
       }
-      xs.push(X[c], null);
-      ys.push(Y[c], null);
+      for (s = steps; s >= 0; s--) {
+        xs.push(depth[p] * Math.cos(a0 + ((a1 - a0) * s) / steps));
+        ys.push(depth[p] * Math.sin(a0 + ((a1 - a0) * s) / steps));
+      }
     }
+    // rounding of shape coordinates, by their extent: depth (the radius) and the tip slots
+    var q = { x: quantum(maxDepth), y: radial ? quantum(maxDepth) : quantum(nTips) };
     return { X: X, Y: Y, depth: depth, far: far, maxDepth: maxDepth, radial: radial, age: age,
-      branch: branch, at: at, angle: angle, nTips: nTips };
+      walk: walk, at: at, angle: angle, nTips: nTips, q: q };
+  }
+
+  // The branches above the nodes v with include(v) as an SVG path in data coordinates, for
+  // a plotly shape: "M" to each parent, "L" along the branch.
+  function branchShapePath(g, nodes, include) {
+    var parts = [];
+    var xs = [];
+    var ys = [];
+    for (var v = 0; v < nodes.length; v++) {
+      var p = nodes[v].parent;
+      if (p < 0 || !include(v)) continue;
+      xs.length = 0;
+      ys.length = 0;
+      g.walk(p, v, xs, ys, false);
+      var d = "M" + num(g.X[p], g.q.x) + "," + num(g.Y[p], g.q.y);
+      for (var k = 0; k < xs.length; k++) d += "L" + num(xs[k], g.q.x) + "," + num(ys[k], g.q.y);
+      parts.push(d);
+    }
+    return parts.join("") || "M0,0";
+  }
+
+  // The branches above the nodes v with include(v) (the path to an object found), as few
+  // polylines as possible: a walk down each connected part of the tree and back up, with a
+  // gap (null) only between parts, since plotly makes one SVG path per gap-separated piece
+  // (the 1,999 branches of a 1,000-tip tree as separate pieces took about 450 ms to draw,
+  // as one piece about 40 ms; benchmarks/bench_tree_browser.py).
+  function branchPaths(g, index, include) {
+    var xs = [];
+    var ys = [];
+    var here = -1; // the node the polyline stands at (-1: the next part needs a gap)
+    var stack = [index.root];
+    var next = [index.first[index.root]];
+    var drawn = [false];
+    while (stack.length) {
+      var top = stack.length - 1;
+      var v = stack[top];
+      if (next[top] >= index.first[v + 1]) { // every child done: climb back to the parent
+        stack.pop();
+        next.pop();
+        if (drawn.pop()) {
+          var p = stack[stack.length - 1];
+          if (here === v) {
+            g.walk(p, v, xs, ys, true);
+            here = p;
+          } else {
+            here = -1;
+          }
+        }
+        continue;
+      }
+      var c = index.kids[next[top]++];
+      var use = Boolean(include(c));
+      if (use) {
+        if (here !== v) {
+          if (xs.length) {
+            xs.push(null);
+            ys.push(null);
+          }
+          xs.push(g.X[v]);
+          ys.push(g.Y[v]);
+        }
+        g.walk(v, c, xs, ys, false);
+        here = c;
+      }
+      stack.push(c);
+      next.push(index.first[c]);
+      drawn.push(use);
+    }
+    return { x: xs, y: ys };
+  }
+
+  // Filled discs of radii rx, ry (data units) centred on the points, as the path of one
+  // plotly shape (filled under the non-zero rule). Plotly gives every marker an SVG element
+  // of its own and styles it twice: 1,000 tip markers took about 190 ms of main-thread time
+  // in the first draw of a 1,000-tip tree, the same discs as one shape about 50 ms (headless
+  // Chromium, the plot of benchmarks/bench_tree_browser.py). With `hole` (a fraction of the
+  // radius) each disc is a ring: the inner circle runs the other way round, so it is left out.
+  var DISC_SIDES = 8; // an octagon of 4 px radius looks round
+  var DISC_COS = [];
+  var DISC_SIN = [];
+  for (var side = 0; side < DISC_SIDES; side++) {
+    DISC_COS.push(Math.cos((2 * Math.PI * side) / DISC_SIDES));
+    DISC_SIN.push(Math.sin((2 * Math.PI * side) / DISC_SIDES));
+  }
+
+  function discPath(xs, ys, rx, ry, hole, q) {
+    var parts = [];
+    function circle(x, y, f, sign) {
+      var d = "";
+      for (var s = 0; s < DISC_SIDES; s++) {
+        var k = sign > 0 ? s : (DISC_SIDES - s) % DISC_SIDES;
+        d += (s ? "L" : "M") + num(x + f * rx * DISC_COS[k], q.x) + "," +
+          num(y + f * ry * DISC_SIN[k], q.y);
+      }
+      return d + "Z";
+    }
+    for (var i = 0; i < xs.length; i++) {
+      parts.push(circle(xs[i], ys[i], 1, 1));
+      if (hole) parts.push(circle(xs[i], ys[i], hole, -1));
+    }
+    return parts.join("") || "M0,0";
+  }
+
+  // A coordinate for a shape's path, rounded to a multiple of 1/q (q from quantum(): seven
+  // digits of the extent of that axis, far finer than a pixel). An integer divided by a power of
+  // ten prints as the short decimal it stands for.
+  function num(v, q) {
+    return String(Math.round(v * q) / q);
+  }
+
+  function quantum(span) {
+    return Math.pow(10, 7 - Math.ceil(Math.log10(span > 0 ? span : 1)));
+  }
+
+  // Pixels per data unit of a layout about to be drawn (the key above the plot, which plotly
+  // fits in later, makes the plot a little shorter: the discs come out a little flatter).
+  function layoutScale(layout, width, height) {
+    var m = layout.margin;
+    var w = Math.max(1, width - m.l - m.r);
+    var h = Math.max(1, height - m.t - m.b);
+    var sx = w / Math.abs(layout.xaxis.range[1] - layout.xaxis.range[0]);
+    var sy = h / Math.abs(layout.yaxis.range[1] - layout.yaxis.range[0]);
+    if (layout.yaxis.scaleanchor) sx = sy = Math.min(sx, sy);
+    return { x: sx, y: sy };
+  }
+
+  // Pixels per data unit of the plot as drawn (plotly's axis scale), or null.
+  function drawnScale(div) {
+    var full = div._fullLayout;
+    var mx = full && full.xaxis && full.xaxis._m;
+    var my = full && full.yaxis && full.yaxis._m;
+    if (!(isFinite(mx) && isFinite(my) && mx && my)) return null;
+    return { x: Math.abs(mx), y: Math.abs(my) };
   }
 
   // ---- The figure -------------------------------------------------------------------------
@@ -407,7 +563,7 @@
     link: "#000000",
   };
 
-  function buildFigure(div, data, state, colours, width) {
+  function buildFigure(div, data, state, colours, width, height, scale) {
     var nodes = data.nodes;
     var index = data.index;
     var font = getComputedStyle(document.body).fontFamily || "sans-serif";
@@ -424,42 +580,52 @@
     var showLabels = (index.tips.length <= MANY_TIPS || state.paper) && !g.radial;
     var traces = [];
 
-    // Branches: one line trace per colour class (plotly colours a line trace as a whole).
-    var byClass = new Map();
+    // Branches: one SVG path (a plotly shape) per colour class, under the traces; the key
+    // gets an entry from a trace without points in the same colour. As line traces, the
+    // branches of a class spread over the tree (shading by a trait) are many pieces, and
+    // plotly draws and styles an element per piece: shading a 1,000-tip tree by a trait took
+    // about 310 ms of main-thread time that way, as shapes about 40 ms
+    // (benchmarks/bench_tree_browser.py).
+    var classes = new Set();
     for (var i = 0; i < nodes.length; i++) {
-      var p = nodes[i].parent;
-      if (p < 0 || fold.hidden[i]) continue;
-      var key = shade.classes ? shade.classes[i] : -1;
-      if (!byClass.has(key)) byClass.set(key, { x: [], y: [] });
-      var bucket = byClass.get(key);
-      g.branch(p, i, bucket.x, bucket.y);
+      if (nodes[i].parent >= 0 && !fold.hidden[i]) {
+        classes.add(shade.classes ? shade.classes[i] : -1);
+      }
     }
+    var shapes = [];
     var shownLegend = new Set();
-    Array.from(byClass.keys()).sort(function (a, b) { return a - b; }).forEach(function (key) {
-      var b = byClass.get(key);
+    Array.from(classes).sort(function (a, b) { return a - b; }).forEach(function (key) {
       var entry = key >= 0 ? shade.legend[key] : null;
-      var group = entry ? entry.group || "class-" + key : "branches";
+      var colour = entry ? entry.colour : colours.branch;
+      var width = entry ? 2.5 : 1.5;
+      shapes.push({
+        type: "path", layer: "between", xref: "x", yref: "y",
+        path: branchShapePath(g, nodes, function (v) {
+          return !fold.hidden[v] && (shade.classes ? shade.classes[v] : -1) === key;
+        }),
+        line: { color: colour, width: width },
+      });
+      var name = entry ? entry.name : "Branch";
+      if (shownLegend.has(name)) return;
+      shownLegend.add(name);
       traces.push({
-        type: "scatter", mode: "lines", x: b.x, y: b.y, hoverinfo: "skip",
-        name: entry ? escapeText(entry.name) : "Branch", // plotly reads names as markup
-        legendgroup: group,
-        showlegend: !shownLegend.has(entry ? entry.name : "Branch"),
-        line: { color: entry ? entry.colour : colours.branch, width: entry ? 2.5 : 1.5 },
+        type: "scatter", mode: "lines", x: [null], y: [null], hoverinfo: "skip",
+        name: escapeText(name), // plotly reads names as markup
+        legendgroup: entry ? entry.group || "class-" + key : "branches",
+        line: { color: colour, width: width },
         meta: "branches",
       });
-      shownLegend.add(entry ? entry.name : "Branch");
     });
 
     // The path to each object found by the search box.
     if (onPath.size > 0) {
-      var path = { x: [], y: [] };
-      onPath.forEach(function (v) {
-        var q = nodes[v].parent;
-        if (q >= 0 && !fold.hidden[v]) g.branch(q, v, path.x, path.y);
+      var path = branchPaths(g, index, function (v) {
+        return onPath.has(v) && !fold.hidden[v];
       });
       traces.push({
         type: "scatter", mode: "lines", x: path.x, y: path.y, hoverinfo: "skip",
-        name: "Path to the object found", line: { color: colours.accent, width: 4 },
+        name: "Path to the object found",
+        line: { color: colours.accent, width: 4, simplify: false },
         meta: "found-path",
       });
     }
@@ -571,44 +737,32 @@
       return lines.join("<br>");
     }
 
+    // Forks drawn as squares only where they can be told apart; on a large tree on screen the
+    // forks of the branches are the marks, and the clades' trace is a hover and click target
+    // without markers (no SVG element per point: 999 squares took about 170 ms of the first
+    // draw of a 1,000-tip tree; benchmarks/bench_tree_browser.py).
+    var nodeMarkers = index.tips.length <= MANY_TIPS || state.paper;
+    // Likewise the tips of a large tree are drawn as discs (discPath), their trace only
+    // answers hover and clicks.
+
     function pointTrace(indices, isTip) {
       var keep = indices.filter(function (v) {
         return !fold.hidden[v] && !fold.collapsed[v];
       });
-      return {
+      var markers = nodeMarkers; // tips on a large tree: discs drawn below (tipDiscs)
+      var trace = {
         type: "scatter",
         // Above MANY_TIPS on screen the names and supports live in the hover box only: a
         // text element per point made a 1,000-tip redraw much slower
         // (benchmarks/bench_tree_browser.py).
-        mode: showLabels ? "markers+text" : "markers",
-        name: isTip ? "Object (opens its page)" : "Clade (number: support; opens its trait sheet)",
+        mode: !markers ? "none" : showLabels ? "markers+text" : "markers",
+        hoveron: "points",
+        name: isTip ? "Object (opens its page)" : markers
+          ? "Clade (number: support; opens its trait sheet)"
+          : "Clade: point at a fork for its support; select it to open its trait sheet",
         meta: isTip ? "tips" : "nodes",
         x: keep.map(function (v) { return g.X[v]; }),
         y: keep.map(function (v) { return g.Y[v]; }),
-        text: keep.map(function (v) {
-          var node = nodes[v];
-          if (isTip) {
-            return showLabels || targets.has(v)
-              ? escapeText(shorten(tipName(node, words), maxChars)) : "";
-          }
-          var s = formatSupport(node.support);
-          return s !== null && node.support < 1 && v !== index.root ? s : "";
-        }),
-        textposition: keep.map(function (v) {
-          if (!g.radial) return isTip ? (g.age ? "middle left" : "middle right") : "top left";
-          var left = Math.cos(g.angle(nodes[v].y)) < 0;
-          return isTip ? (left ? "middle left" : "middle right") : "top center";
-        }),
-        textfont: {
-          family: font,
-          size: isTip ? 12 : 10,
-          color: isTip
-            ? keep.map(function (v) {
-                return targets.has(v) ? colours.accent
-                  : outgroup.has(nodes[v].id) ? colours.muted : colours.fg;
-              })
-            : colours.muted,
-        },
         cliponaxis: false,
         hovertext: keep.map(hoverText),
         hoverinfo: "text",
@@ -633,6 +787,29 @@
           },
         },
       };
+      if (!showLabels) return trace; // no text is drawn: build no per-point text arrays
+      trace.text = keep.map(function (v) {
+        var node = nodes[v];
+        if (isTip) return escapeText(shorten(tipName(node, words), maxChars));
+        var s = formatSupport(node.support);
+        return s !== null && node.support < 1 && v !== index.root ? s : "";
+      });
+      trace.textposition = keep.map(function (v) {
+        if (!g.radial) return isTip ? (g.age ? "middle left" : "middle right") : "top left";
+        var left = Math.cos(g.angle(nodes[v].y)) < 0;
+        return isTip ? (left ? "middle left" : "middle right") : "top center";
+      });
+      trace.textfont = {
+        family: font,
+        size: isTip ? 12 : 10,
+        color: isTip
+          ? keep.map(function (v) {
+              return targets.has(v) ? colours.accent
+                : outgroup.has(nodes[v].id) ? colours.muted : colours.fg;
+            })
+          : colours.muted,
+      };
+      return trace;
     }
     traces.push(pointTrace(index.inner, false));
     traces.push(pointTrace(index.tips, true));
@@ -662,6 +839,7 @@
         itemclick: false, itemdoubleclick: false,
       },
       uirevision: state.layout + state.lengths,
+      shapes: shapes,
     };
     if (g.radial) {
       var reach = span * 1.04;
@@ -682,7 +860,62 @@
       // the first tip at the top, so the plot reads in the same order as the text list
       layout.yaxis = { range: [index.tips.length - 0.2, -0.8], visible: false, fixedrange: false };
     }
-    return { data: traces, layout: layout, tips: index.tips.length };
+    var discs = [];
+    if (!nodeMarkers) {
+      scale = scale || layoutScale(layout, width, height);
+      tipDiscs(traces, discs, scale);
+    }
+    return { data: traces, layout: layout, tips: index.tips.length, discs: discs, scale: scale };
+
+    // The tips of a large tree: a disc per tip in the link colour (a ring when shaded), discs
+    // in the shading's colours inside it, and the found objects and clades as markers.
+    // `discs` records each disc shape (index, centres, radius in px) to redraw at a new zoom.
+    function tipDiscs(traces, discs, scale) {
+      var tipsTrace = traces[traces.length - 1];
+      tipsTrace.showlegend = false;
+      function add(colour, list, rpx, hole) {
+        var xs = list.map(function (v) { return g.X[v]; });
+        var ys = list.map(function (v) { return g.Y[v]; });
+        discs.push({ shape: shapes.length, x: xs, y: ys, r: rpx, hole: hole, q: g.q });
+        shapes.push({ type: "path", layer: "between", xref: "x", yref: "y", fillrule: "nonzero",
+          fillcolor: colour, line: { width: 0 },
+          path: discPath(xs, ys, rpx / scale.x, rpx / scale.y, hole, g.q) });
+      }
+      var shown = index.tips.filter(function (v) { return !fold.hidden[v] && !targets.has(v); });
+      // The key shows the marker the discs stand for (a trace without points draws nothing).
+      traces.push({ type: "scatter", mode: "markers", x: [null], y: [null], hoverinfo: "skip",
+        name: "Object (opens its page)", meta: "tips-key",
+        marker: { size: 7, symbol: "circle", color: colours.link,
+          line: { width: 1.5, color: colours.link } } });
+      // As a marker of size 7 with a 1.5 px outline: radius 4.25 px, the fill 2.75 px.
+      add(colours.link, shown, 4.25, shade.classes ? 2.75 / 4.25 : 0);
+      if (shade.classes) {
+        var byColour = new Map();
+        shown.forEach(function (v) {
+          var colour = nodeColour(v, true);
+          if (!byColour.has(colour)) byColour.set(colour, []);
+          byColour.get(colour).push(v);
+        });
+        byColour.forEach(function (list, colour) {
+          add(colour, list, 2.75, 0);
+        });
+      }
+      var found = Array.from(targets).filter(function (v) {
+        return !fold.hidden[v] && !fold.collapsed[v];
+      });
+      if (found.length) {
+        traces.push({
+          type: "scatter", mode: "markers", meta: "found", showlegend: false, hoverinfo: "skip",
+          x: found.map(function (v) { return g.X[v]; }),
+          y: found.map(function (v) { return g.Y[v]; }),
+          marker: {
+            size: found.map(function (v) { return nodes[v].kind === "tip" ? 12 : 10; }),
+            symbol: found.map(function (v) { return nodes[v].kind === "tip" ? "circle" : "square"; }),
+            color: colours.accent, line: { width: 1.5, color: colours.accent },
+          },
+        });
+      }
+    }
   }
 
   function visibleAncestor(nodes, fold, v) {
@@ -906,33 +1139,68 @@
     };
 
     var baseHeight = null;
+    var shown = null; // the figure on screen
     // mode: "first" (newPlot), "screen" (redraw after a change) or "paper" (fixed size, black
     // on white, for printing).
     function render(mode) {
       var paper = mode === "paper";
       state.paper = paper;
       var width = paper ? PAPER_WIDTH_PX : div.clientWidth;
-      var fig = buildFigure(div, data, state, paper ? PAPER : screenColours(), width);
+      var tips = data.index.tips.length;
+      var height;
       if (paper) {
-        fig.layout.width = PAPER_WIDTH_PX;
-        fig.layout.height = Math.min(PAPER_MAX_HEIGHT_PX, Math.max(360, fig.tips * 16 + 72));
-      }
-      // Room for every label; without labels (many tips) a denser tree that zooming opens
-      // up: an 18,000 px tall plot made every redraw of 1,000 tips several times slower
-      // (benchmarks/bench_tree_browser.py).
-      var needed = state.layout === "radial" ? Math.min(div.clientWidth, 1000)
-        : fig.tips <= MANY_TIPS ? fig.tips * TIP_ROW_PX + 160 : Math.min(fig.tips * 3 + 160, 2400);
-      if (!paper) {
-        // never below the stylesheet's height; plotly is told the height, the width follows
-        // the box
+        height = Math.min(PAPER_MAX_HEIGHT_PX, Math.max(360, tips * 16 + 72));
+      } else {
+        // Room for every label; without labels (many tips) a denser tree that zooming opens
+        // up: an 18,000 px tall plot made every redraw of 1,000 tips several times slower
+        // (benchmarks/bench_tree_browser.py). Never below the stylesheet's height; plotly is
+        // told the height, the width follows the box.
+        var needed = state.layout === "radial" ? Math.min(width, 1000)
+          : tips <= MANY_TIPS ? tips * TIP_ROW_PX + 160 : Math.min(tips * 3 + 160, 2400);
         if (baseHeight === null) baseHeight = div.clientHeight;
-        var height = Math.max(baseHeight, needed);
-        div.style.height = height + "px";
-        fig.layout.height = height;
+        height = Math.max(baseHeight, needed);
       }
+      // A redraw that keeps the reader's zoom (same uirevision) keeps its scale.
+      var keep = mode === "screen" && shown && shown.layout.uirevision ===
+        state.layout + state.lengths && shown.layout.height === height ? drawnScale(div) : null;
+      var fig = buildFigure(div, data, state, paper ? PAPER : screenColours(), width, height,
+        keep);
+      // plotly.js 4.1 leaves drawn "between" shapes beyond the new count on the page when a
+      // redraw has fewer of them: keep the count up with empty paths.
+      var shapes = fig.layout.shapes;
+      while (shown && shapes.length < shown.layout.shapes.length) {
+        shapes.push({ type: "path", layer: "between", xref: "x", yref: "y", path: "M0,0",
+          line: { width: 0 } });
+      }
+      fig.layout.height = height;
+      if (paper) fig.layout.width = PAPER_WIDTH_PX;
+      else div.style.height = height + "px";
       div.dataset.shade = state.shade ? state.shade + ":" + state.mode : "";
       div.dataset.layout = state.layout;
+      shown = fig;
       return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout, CONFIG);
+    }
+
+    // After a zoom (or anything else that changed the plot's scale) the tip discs are redrawn
+    // at their size in pixels; one frame later, so plotly has finished drawing.
+    var rescaling = null;
+    function rescaleDiscs() {
+      if (rescaling || !shown || !shown.discs.length) return;
+      rescaling = window.requestAnimationFrame(function () {
+        rescaling = null;
+        var now = drawnScale(div);
+        var was = shown.scale;
+        if (!now || (Math.abs(now.x / was.x - 1) < 0.1 && Math.abs(now.y / was.y - 1) < 0.1)) {
+          return;
+        }
+        shown.scale = now;
+        var update = {};
+        shown.discs.forEach(function (d) {
+          update["shapes[" + d.shape + "].path"] = discPath(d.x, d.y, d.r / now.x, d.r / now.y,
+            d.hole, d.q);
+        });
+        Plotly.relayout(div, update);
+      });
     }
 
     var drawing;
@@ -949,7 +1217,9 @@
         keepOutOfTabOrder(div);
         div.on("plotly_afterplot", function () {
           keepOutOfTabOrder(div);
+          rescaleDiscs();
         });
+        rescaleDiscs();
         div.on("plotly_click", function (event) {
           var point = event && event.points && event.points[0];
           var href = point && point.customdata;
