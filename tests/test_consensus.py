@@ -14,6 +14,7 @@ from dendropy.utility import constants
 
 import atlas.analysis.consensus as consensus_module
 from atlas.analysis.consensus import (
+    clade_frequencies,
     clade_support,
     majority_rule,
     mcc_tree,
@@ -22,7 +23,13 @@ from atlas.analysis.consensus import (
 )
 from atlas.analysis.tree import clade_masks, clade_words
 from atlas.errors import AtlasError
-from atlas.sources.trees import TreeSample, mask_labels, parse_newick, read_tree_file
+from atlas.sources.trees import (
+    TreeSample,
+    mask_labels,
+    parse_newick,
+    read_tree_file,
+    write_newick,
+)
 
 POSTERIOR = Path("/work/shared/realdata/semitic-kitchen2009/posterior.trees")
 
@@ -250,3 +257,12 @@ def test_unique_rows_equal_numpy_and_survive_hash_collisions(monkeypatch):
     assert hashes is None and np.array_equal(unique[inverse], rows)
     sample = sample_of("((A,B),(C,D));", "((A,B),C,D);", "((A,C),(B,D));")
     assert clade_support(sample, sample.trees[0])[1].tolist() == [3, 3, 2, 3, 3, 1, 3]
+
+
+def test_one_child_chains_count_once_and_add_their_lengths():
+    # (invented) a chain of one-child nodes above clade {A, B} in tree 1 and above tip C in
+    # tree 2; by hand: {A, B} is in both trees once (frequency 1), its branch is 2 + 3 = 5 in
+    # tree 1 and 4 in tree 2 (mean 4.5), and C's branch is 1 and 0.5 + 0.5 (mean 1)
+    sample = sample_of("(((A:1,B:1):2):3,C:1);", "((A:1,B:1):4,(C:0.5):0.5);")
+    assert clade_frequencies(sample) == {frozenset({"A", "B"}): 1.0}
+    assert write_newick(majority_rule(sample).tree) == "((A:1.0,B:1.0):4.5,C:1.0);"

@@ -13,7 +13,9 @@ import dendropy
 import numpy as np
 import pytest
 
+import atlas.sources.tree_tokens as tree_tokens
 import atlas.sources.trees as trees_module
+import atlas.sources.trees_fast as trees_fast
 from atlas.analysis.tree import clade_masks
 from atlas.errors import AtlasError
 from atlas.sources.trees import (
@@ -337,7 +339,7 @@ def same_trees(a, b) -> bool:
 )
 def test_batch_parser_equals_token_parser(path, monkeypatch):
     fast = read_tree_file(path)
-    monkeypatch.setattr(trees_module, "_plain_body", lambda text, start: None)
+    monkeypatch.setattr(trees_module, "plain_body", lambda text, start: None)
     slow = read_tree_file(path)  # every tree token by token
     assert same_trees(fast, slow)
 
@@ -351,24 +353,27 @@ def test_batch_parser_on_plain_names_and_internal_labels(tmp_path, monkeypatch):
     path = tmp_path / "plain.nwk"
     path.write_text(text)
     fast = read_tree_file(path)
-    monkeypatch.setattr(trees_module, "_plain_body", lambda text, start: None)
+    monkeypatch.setattr(trees_module, "plain_body", lambda text, start: None)
     assert same_trees(fast, read_tree_file(path))
 
 
-def test_decimals_equal_python_float():
+def test_numbers_equal_python_float():
     rng = np.random.default_rng(7)  # seeded
     texts = [repr(float(x)) for x in rng.random(3000) * 10.0 ** rng.integers(-30, 30, 3000)]
+    texts += [f"{x:.6g}" for x in rng.random(2000) * 10.0 ** rng.integers(-8, 8, 2000)]
     texts += ["1.5e-05", "2E3", ".5", "5.", "+1e-3", "-2.5", "00012", "9.036477332963182E-5"]
     texts += ["1e", "e5", ".", "1.2.3", "+-1", "1-2", "1e+", "", "1e400", "5e-324", "-0.0"]
     texts += ["123456789012345678901234567890", "0.1234567890123456789", "1x5", "1_0"]
+    texts += ["9007199254740993", "9007199254740992e22", "1e-22", "1e23", "+.5e+1", "-.0e-0"]
+    texts += ["1.5e-0005", "1e22", "0" * 30 + "1", "2.0e", "--1", "1e1e1", "e", "+", "1.5E+308"]
     raw = (",".join(texts) + ",").encode()
     b = np.frombuffer(raw, dtype=np.uint8)
     ends = np.flatnonzero(b == 44)
     starts = np.r_[0, ends[:-1] + 1]
-    values, good = trees_module._decimals(b, starts, ends)
+    values, good = trees_fast.parse_numbers(b, starts, ends)
     for text, value, ok in zip(texts, values, good, strict=True):
         # the token path's number pattern decides what is a number; Python's float its value
-        assert ok == bool(trees_module._NUMBER.match(text)), text
+        assert ok == bool(tree_tokens.NUMBER.match(text)), text
         if ok:
             assert value == float(text) and np.signbit(value) == np.signbit(float(text)), text
 

@@ -123,14 +123,25 @@ def subtree_starts(tree: Tree) -> np.ndarray:
 
 
 def _first_descendant(trees: Sequence[Tree]) -> np.ndarray:
-    pieces, offset = [], 0
-    for tree in trees:
-        f = np.arange(offset, offset + tree.n_nodes, dtype=np.int64)
-        has = tree.child_ptr[1:] > tree.child_ptr[:-1]
-        f[has] = tree.child_idx[tree.child_ptr[:-1][has]] + offset
-        pieces.append(f)
-        offset += tree.n_nodes
-    f = np.concatenate(pieces) if pieces else np.zeros(0, dtype=np.int64)
+    """The smallest node id below each node of ``trees`` laid end to end (ids count on from
+    one tree to the next): first children followed down by pointer doubling."""
+    if not trees:
+        return np.zeros(0, dtype=np.int64)
+    sizes = np.fromiter((t.n_nodes for t in trees), dtype=np.int64, count=len(trees))
+    offsets = np.zeros(len(trees) + 1, dtype=np.int64)
+    np.cumsum(sizes, out=offsets[1:])
+    # every tree's CSR arrays joined, shifted to joined ids and joined child positions
+    ptr = np.concatenate([t.child_ptr[:-1] for t in trees]).astype(np.int64)
+    idx = np.concatenate([t.child_idx for t in trees]).astype(np.int64)
+    n_children = np.fromiter((t.child_idx.size for t in trees), dtype=np.int64, count=len(trees))
+    child_base = np.concatenate([[0], np.cumsum(n_children)[:-1]])
+    ptr += np.repeat(child_base, sizes)
+    idx += np.repeat(offsets[:-1], n_children)
+    ends = np.append(ptr[1:], idx.size)
+    ends[offsets[1:] - 1] = np.append(child_base[1:], idx.size)  # each tree's last node
+    f = np.arange(offsets[-1], dtype=np.int64)
+    has = ends > ptr
+    f[has] = idx[ptr[has]]
     while True:
         g = f[f]
         if np.array_equal(g, f):
@@ -138,7 +149,9 @@ def _first_descendant(trees: Sequence[Tree]) -> np.ndarray:
         f = g
 
 
-def clade_words(trees: Sequence[Tree], n_taxa: int) -> tuple[np.ndarray, np.ndarray]:
+def clade_words(
+    trees: Sequence[Tree], n_taxa: int, nodes: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """The clade of every node of every tree as bitset words: ``(rows, offsets)``.
 
     ``rows[offsets[k] + v]`` holds ``ceil(n_taxa / 64)`` little-endian ``uint64`` words whose
@@ -146,11 +159,14 @@ def clade_words(trees: Sequence[Tree], n_taxa: int) -> tuple[np.ndarray, np.ndar
     :func:`clade_masks`). Each subtree is a block of ids ``start .. v`` holding each of its
     tips once, so its bitset is a difference of running XORs of the tips' one-hot words:
     ``rows[v] = X[v] ^ X[start - 1]``, all nodes of all trees in a few array operations.
+    With ``nodes`` (ids counted on from one tree to the next), only their rows, in that order.
 
     >>> t = Tree([2, 2, 4, 4, -1], [1.0] * 5, [0, 1, -1, 2, -1], ("A", "B", "C"))
     >>> rows, offsets = clade_words([t, t], 3)
     >>> rows[:, 0].tolist(), offsets.tolist()
     ([1, 2, 3, 4, 7, 1, 2, 3, 4, 7], [0, 5, 10])
+    >>> clade_words([t, t], 3, np.array([2, 9]))[0][:, 0].tolist()
+    [3, 7]
     """
     words = max(1, -(-n_taxa // 64))
     offsets = np.zeros(len(trees) + 1, dtype=np.int64)
@@ -158,12 +174,79 @@ def clade_words(trees: Sequence[Tree], n_taxa: int) -> tuple[np.ndarray, np.ndar
     total = int(offsets[-1])
     start = _first_descendant(trees)
     tip = np.concatenate([t.tip for t in trees]) if trees else np.zeros(0, dtype=np.int32)
-    rows = np.zeros((total, words), dtype=np.uint64)
+    running = np.zeros((total + 1, words), dtype=np.uint64)  # row i + 1: XOR of nodes 0..i
     at = np.flatnonzero(tip >= 0)
     taxon = tip[at].astype(np.uint64)
-    rows[at, (taxon // np.uint64(64)).astype(np.int64)] = np.uint64(1) << (taxon % np.uint64(64))
-    np.bitwise_xor.accumulate(rows, axis=0, out=rows)
-    before = start - 1
-    inner = before >= 0
-    rows[inner] ^= rows[before[inner]]
-    return rows, offsets
+    word = (taxon // np.uint64(64)).astype(np.int64)
+    running[at + 1, word] = np.uint64(1) << (taxon % np.uint64(64))
+    np.bitwise_xor.accumulate(running, axis=0, out=running)
+    if nodes is None:
+        return running[1:] ^ running[start], offsets
+    nodes = np.asarray(nodes, dtype=np.int64)
+    return running[nodes + 1] ^ running[start[nodes]], offsets
+
+
+def trees_from_arrays(
+    parent: np.ndarray,
+    length: np.ndarray,
+    tip: np.ndarray,
+    offsets: np.ndarray,
+    taxa: tuple[str, ...],
+    labels: Sequence[tuple[str | None, ...]],
+) -> list[Tree]:
+    """Many trees from arrays laid end to end: tree ``k`` is rows ``offsets[k]:offsets[k+1]``
+    of ``parent`` (ids within the tree), ``length`` and ``tip``, and ``labels[k]``.
+
+    The same trees as ``Tree(...)`` one at a time (each tree's arrays are views of the joined
+    ones), with the postorder check and the CSR children done for all trees in whole-array
+    steps. Measured on benchmarks/bench_consensus.py (1,000 trees of 399 nodes, best of 7 on a
+    loaded machine): 0.024 s, against 0.046 s for ``Tree(...)`` tree by tree.
+
+    >>> ts = trees_from_arrays(np.array([2, 2, -1, 1, -1]), np.ones(5), np.array([0, 1, -1,
+    ...                        0, -1]), np.array([0, 3, 5]), ("A", "B"), [(), ()])
+    >>> [t.parent.tolist() for t in ts], ts[1].children(1).tolist()
+    ([[2, 2, -1], [1, -1]], [0])
+    """
+    parent = np.asarray(parent, dtype=np.int32)
+    length = np.asarray(length, dtype=np.float64)
+    tip = np.asarray(tip, dtype=np.int32)
+    offsets = np.asarray(offsets, dtype=np.int64)
+    sizes = np.diff(offsets)
+    start = np.repeat(offsets[:-1], sizes)
+    local = np.arange(parent.size) - start
+    is_root = parent < 0
+    last = offsets[1:][sizes > 0] - 1
+    if not (
+        np.count_nonzero(is_root) == last.size
+        and np.all(parent[last] == -1)
+        and np.all(parent[~is_root] > local[~is_root])
+        and np.all(parent < np.repeat(sizes, sizes))
+    ):
+        raise ValueError("nodes are not in postorder: every parent id must exceed its child's")
+    child = np.flatnonzero(~is_root)
+    key = parent[child] + start[child]  # the parent's row
+    order = child[np.argsort(key, kind="stable")]  # timsort: the keys come in long runs
+    child_idx = (order - start[order]).astype(np.int32)
+    below = np.zeros(parent.size + 1, dtype=np.int64)  # children of the rows before each row
+    np.cumsum(np.bincount(key, minlength=parent.size), out=below[1:])
+    # every tree's child_ptr in one array: tree k's is rows offsets[k] + k .. offsets[k+1] + k
+    rows = np.arange(parent.size + sizes.size) - np.repeat(np.arange(sizes.size), sizes + 1)
+    ptr = (below[rows] - np.repeat(below[offsets[:-1]], sizes + 1)).astype(np.int32)
+    out: list[Tree] = []
+    bounds = zip(offsets[:-1].tolist(), offsets[1:].tolist(), below[offsets[1:]].tolist())
+    first = 0
+    for k, (a, z, end) in enumerate(bounds):
+        tree = object.__new__(Tree)
+        # the fields set as __post_init__ would (a frozen dataclass keeps them in __dict__)
+        tree.__dict__.update(
+            parent=parent[a:z],
+            length=length[a:z],
+            tip=tip[a:z],
+            taxa=taxa,
+            label=labels[k] if labels[k] else (None,) * (z - a),
+            child_ptr=ptr[a + k : z + k + 1],
+            child_idx=child_idx[first:end],
+        )
+        first = end
+        out.append(tree)
+    return out

@@ -1,8 +1,10 @@
 """Reading trees: Newick and NEXUS files, one tree or a posterior sample.
 
 A small tokenizer of our own turns the text into tokens (punctuation, words, quoted labels,
-comments) and a postorder builder turns each tree statement into a
-:class:`~atlas.analysis.tree.Tree`.
+comments; :mod:`atlas.sources.tree_tokens`); the NEXUS commands are read here, and each tree
+statement is built in postorder, either by the batch parser (:mod:`atlas.sources.trees_fast`,
+the plain trees MCMC programs write, all of a TREES block at once) or token by token (any
+other tree, and every tree with a problem, so that problems are worded by one parser).
 What MCMC programs write is accepted as written:
 
 - NEXUS ``TREES`` blocks with ``TRANSLATE`` (keys numbered from 0 or 1, or names), a ``TAXA``
@@ -31,19 +33,27 @@ from pathlib import Path
 
 import numpy as np
 
-from atlas.analysis.tree import Tree, clade_masks
-from atlas.errors import AtlasError, Problem, Problems, did_you_mean
-
-# One token after optional whitespace: 1 punctuation, 2 quoted label, 3 simple comment,
-# 4 the start of a nested (or unterminated) comment, 5 a word, 6 anything else (a stray quote
-# or bracket).
-_TOKEN = re.compile(
-    r"\s*(?:([(),:;=])|('(?:[^']|'')*')|(\[[^\[\]]*\])|(\[)|([^\s()\[\]',:;=]+)|(\S))"
+from atlas.analysis.tree import Tree, clade_masks, trees_from_arrays
+from atlas.errors import AtlasError, Problem, Problems
+from atlas.sources.tree_tokens import (
+    Bad,
+    Lexer,
+    Namespace,
+    RawTree,
+    Token,
+    parse_tree_tokens,
+    skip_to_semicolon,
 )
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?\Z")
-_MAX_PROBLEMS = 50  # stop collecting after this many (a broken file would list thousands)
+from atlas.sources.trees_fast import RawTrees, parse_batch, plain_body
 
-Token = tuple[str, str, int]  # (kind, value, offset); kind: one of "(),:;=", "q", "c", "w", "x"
+_MAX_PROBLEMS = 50  # stop collecting after this many (a broken file would list thousands)
+# A TREE command's name and comments, '=', then comments up to the tree's '(' (group 1 marks
+# the first token after '='): the token loop of _Reader.tree_command in one match. Measured on
+# benchmarks/bench_consensus.py (its TRANSLATE and 1,000 TREE commands, best of 5 on a loaded
+# machine): 0.012 s for the NEXUS commands, against 0.025 s token by token.
+_TREE_HEAD = re.compile(
+    r"(?:\s*+(?:[^\s()\[\]',:;=]++|\[[^\[\]]*+\]))*+\s*+=\s*+()(?:\[[^\[\]]*+\]\s*+)*+\("
+)
 
 
 @dataclass(frozen=True)
@@ -104,453 +114,6 @@ def mask_labels(mask: int, taxa: Sequence[str]) -> frozenset[str]:
 
 
 # ---------------------------------------------------------------------------------------------
-# Tokens
-
-
-def _comment_end(text: str, start: int) -> int:
-    """The offset just past the ``]`` closing the comment opened at ``start``, or -1."""
-    depth = 1
-    i = start + 1
-    while True:
-        close = text.find("]", i)
-        if close < 0:
-            return -1
-        opening = text.find("[", i, close)
-        if opening >= 0:
-            depth += 1
-            i = opening + 1
-        else:
-            depth -= 1
-            i = close + 1
-            if depth == 0:
-                return i
-
-
-class _Lexer:
-    """The tokens of a text as ``(kind, value, offset)``; an ``"x"`` token ends a broken text.
-
-    An iterator whose position ``pos`` may be moved forward (the fast tree path reads a whole
-    tree at once and then moves it past the tree).
-    """
-
-    def __init__(self, text: str):
-        self.text = text
-        self.pos = 0
-        self._match = _TOKEN.match
-
-    def __iter__(self) -> _Lexer:
-        return self
-
-    def __next__(self) -> Token:
-        text = self.text
-        m = self._match(text, self.pos)
-        if m is None:
-            raise StopIteration
-        self.pos = m.end()
-        k = m.lastindex
-        if k == 1:
-            return m.group(1), "", m.start(1)
-        if k == 5:
-            return "w", m.group(5), m.start(5)
-        if k == 3:
-            return "c", m.group(3), m.start(3)
-        if k == 2:
-            return "q", m.group(2)[1:-1].replace("''", "'"), m.start(2)
-        if k == 4:
-            start = m.start(4)
-            end = _comment_end(text, start)
-            if end < 0:
-                self.pos = len(text)
-                return "x", "unterminated comment (no closing ']')", start
-            self.pos = end
-            return "c", text[start:end], start
-        start = m.start(6)
-        char = m.group(6)
-        if char == "'":
-            self.pos = len(text)
-            return "x", "unterminated quoted label (no closing quote)", start
-        return "x", f"unexpected {char!r}", start
-
-
-class _Bad(Exception):
-    """A problem inside one statement: its offset and message (turned into a Problem)."""
-
-    def __init__(self, pos: int, message: str, hint: str = "", *, at_end: bool = False):
-        super().__init__(message)
-        self.pos = pos
-        self.message = message
-        self.hint = hint
-        self.at_end = at_end  # the statement's ';' (or the end of the text) is already read
-
-
-@dataclass
-class _RawTree:
-    """A parsed tree before its tips are mapped onto the sample's taxa."""
-
-    pos: int
-    parent: list[int] | np.ndarray
-    length: list[float] | np.ndarray
-    names: list[str | None]  # tip name (translated) or None for internal nodes
-    labels: list[str | None]
-
-
-class _Namespace:
-    """How tip tokens become taxon names: TRANSLATE keys, TAXLABELS numbers, or as written."""
-
-    def __init__(self) -> None:
-        self.translate: dict[str, str] = {}
-        self.taxlabels: list[str] = []
-
-    def numbered(self) -> np.ndarray | None:
-        """When every TRANSLATE key is a plain number: an object array, name by key (None
-        where no key); else None."""
-        keys = self.translate
-        if not keys or not all(k.isdigit() and k.isascii() for k in keys):
-            return None
-        if any(k != str(int(k)) for k in keys) or max(int(k) for k in keys) > 10 * len(keys):
-            return None  # leading zeros, or keys too sparse for an array
-        table = np.full(max(int(k) for k in keys) + 1, None, dtype=object)
-        for k, name in keys.items():
-            table[int(k)] = name
-        return table
-
-    def name(self, token: str, pos: int) -> str:
-        if not self.translate and not self.taxlabels:
-            return token
-        if token in self.translate:
-            return self.translate[token]
-        known = set(self.translate.values()) | set(self.taxlabels)
-        if token in known:
-            return token
-        if not self.translate and token.isdigit() and 1 <= int(token) <= len(self.taxlabels):
-            return self.taxlabels[int(token) - 1]
-        what = "translate key" if self.translate else "taxon"
-        hint = did_you_mean(token, list(self.translate) + sorted(known))
-        raise _Bad(pos, f"unknown {what} {token!r} in tree", hint)
-
-
-def _parse_tree(tokens: Iterator[Token], first: Token, names: _Namespace) -> _RawTree:
-    """Build one tree in postorder from its tokens up to and including ``;``."""
-    parent: list[int] = []
-    length: list[float] = []
-    tipname: list[str | None] = []
-    label: list[str | None] = []
-    stack: list[list[int]] = []
-    seen: dict[str, int] = {}
-    cur = -1  # the node just completed; -1 while a new node is expected
-    has_length = False
-    kind, value, pos = first
-    start = pos
-    while True:
-        if kind == "c":
-            pass
-        elif kind == "(":
-            if cur >= 0:
-                raise _Bad(pos, "unexpected '(' after a node (missing ',')")
-            stack.append([])
-        elif kind == "," or kind == ")":
-            if cur < 0:
-                raise _Bad(pos, f"empty node before {kind!r} (a tip without a label)")
-            if not stack:
-                raise _Bad(pos, f"unbalanced {kind!r}: no '(' is open")
-            if kind == ",":
-                stack[-1].append(cur)
-                cur = -1
-            else:
-                kids = stack.pop()
-                kids.append(cur)
-                cur = len(parent)
-                for c in kids:
-                    parent[c] = cur
-                parent.append(-1)
-                length.append(math.nan)
-                tipname.append(None)
-                label.append(None)
-            has_length = False
-        elif kind == "w" or kind == "q":
-            if cur < 0:
-                name = names.name(value, pos)
-                if name in seen:
-                    raise _Bad(pos, f"tip label {name!r} appears twice in this tree")
-                seen[name] = pos
-                cur = len(parent)
-                parent.append(-1)
-                length.append(math.nan)
-                tipname.append(name)
-                label.append(name)
-            elif tipname[cur] is None and label[cur] is None and not has_length:
-                label[cur] = value
-            else:
-                raise _Bad(pos, f"unexpected label {value!r} (missing ',' or ')')")
-        elif kind == ":":
-            if cur < 0 or has_length:
-                raise _Bad(pos, "unexpected ':'")
-            kind, value, pos = next(tokens, ("", "", -1))
-            while kind == "c":
-                kind, value, pos = next(tokens, ("", "", -1))
-            if kind != "w" or not _NUMBER.match(value):
-                shown = value or kind or "end of file"
-                raise _Bad(
-                    pos if pos >= 0 else start,
-                    f"branch length {shown!r} is not a number",
-                    at_end=kind in ("", ";"),
-                )
-            length[cur] = float(value)
-            has_length = True
-        elif kind == ";":
-            if stack:
-                raise _Bad(
-                    start, f"unbalanced parentheses: {len(stack)} '(' not closed", at_end=True
-                )
-            if cur < 0:
-                raise _Bad(pos, "empty tree", at_end=True)
-            return _RawTree(start, parent, length, tipname, label)
-        elif kind == "x":
-            raise _Bad(pos, value, at_end=value.startswith("unterminated"))
-        elif kind == "":
-            if stack:
-                raise _Bad(
-                    start,
-                    f"truncated tree: {len(stack)} '(' not closed at end of file",
-                    at_end=True,
-                )
-            raise _Bad(start, "truncated tree: no ';' at its end", at_end=True)
-        else:
-            raise _Bad(pos, f"unexpected {kind!r} in tree")
-        kind, value, pos = next(tokens, ("", "", -1))
-
-
-_SIMPLE_COMMENT = re.compile(r"\[[^\[\]]*\]")
-_SPACE_AROUND = re.compile(r"\s*([(),:])\s*")
-_SPACE = re.compile(r"\s")
-
-
-def _has_space(text: str) -> bool:
-    # substring tests are several times faster than a regex search on long tree lines
-    return any(c in text for c in " \n\r\t\f\v") or (
-        not text.isascii() and bool(_SPACE.search(text))
-    )
-
-
-def _plain_body(text: str, start: int) -> tuple[str, int] | None:
-    """The tree from ``start`` to the next ``;`` with comments and spaces between tokens taken
-    out, and the offset after the ``;``; None when it holds anything the batch parser does not
-    take (quotes, nested comments, a space inside a label, no leading ``(``)."""
-    end = text.find(";", start)
-    if end < 0:
-        return None
-    body = text[start:end]
-    if "'" in body:
-        return None
-    if "[" in body or "]" in body:
-        body = _SIMPLE_COMMENT.sub("", body)
-        if "[" in body or "]" in body:
-            return None
-    body = body.strip()
-    if _has_space(body):
-        body = _SPACE_AROUND.sub(r"\1", body)
-        if _has_space(body):
-            return None
-    if not body.startswith("("):
-        return None
-    return body, end + 1
-
-
-_KIND = np.zeros(256, dtype=np.int8)  # delimiter kinds: ( 1, ) 2, ',' 3, : 4, ; 5
-for _code, _char in enumerate(b"(),:;", start=1):
-    _KIND[_char] = _code
-
-
-def _joined(b: np.ndarray, starts: np.ndarray, ends: np.ndarray) -> bytes:
-    """The bytes of the disjoint spans ``[starts, ends)`` of ``b``, each followed by ``,``."""
-    inside = np.zeros(b.size + 1, dtype=np.int32)
-    np.add.at(inside, starts, 1)
-    np.add.at(inside, ends, -1)
-    keep = np.cumsum(inside[:-1]) > 0
-    keep[ends] = True
-    out = b.copy()
-    out[ends] = 44
-    return out[keep].tobytes()
-
-
-_POW10 = 10.0 ** np.arange(31)
-
-
-def _decimals(b: np.ndarray, starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Parse the numbers written in the spans ``[starts, ends)`` of ``b``, all at once:
-    ``(values, good)``, ``good`` False where a span is not ``[+-]?(d+.?d*|.d+)([eE][+-]?d+)?``.
-
-    The digits of the mantissa make an integer ``M`` and the exponent a power ``10**k``; when
-    ``M < 2**53`` and ``|k| <= 22`` both are exact floats, so one multiplication or division is
-    correctly rounded (Clinger 1990, PLDI) and equals Python's ``float(text)``; other spans
-    are parsed by ``float``. Measured on benchmarks/bench_consensus.py: 400,000 branch lengths
-    in 0.05 s, against 0.3 s making a Python string of each.
-    """
-    n = ends - starts
-    k = n.size
-    span = np.repeat(np.arange(k, dtype=np.int32), n)
-    first = (np.cumsum(n) - n).astype(np.int32)
-    rel = np.arange(span.size, dtype=np.int32) - first[span]
-    c = b[starts[span] + rel]
-    digit = (c >= 48) & (c <= 57)
-    is_e, is_dot, is_sign = (c == 101) | (c == 69), c == 46, (c == 43) | (c == 45)
-    good = (n > 0) & (np.bincount(span[~(digit | is_e | is_dot | is_sign)], minlength=k) == 0)
-    good &= np.bincount(span[is_e], minlength=k) <= 1
-    e_at = np.full(k, np.iinfo(np.int32).max, dtype=np.int32)
-    e_at[span[is_e]] = rel[is_e]
-    mant = rel < e_at[span]
-    good &= np.bincount(span[is_dot & mant], minlength=k) == np.bincount(span[is_dot], minlength=k)
-    good &= np.bincount(span[is_dot], minlength=k) <= 1
-    good &= np.bincount(span[is_sign & (rel != 0) & (rel != e_at[span] + 1)], minlength=k) == 0
-    md, ed = digit & mant, digit & ~mant
-    n_mant = np.bincount(span[md], minlength=k)
-    has_e = e_at < np.iinfo(np.int32).max
-    good &= (n_mant > 0) & (~has_e | (np.bincount(span[ed], minlength=k) > 0))
-    dot_at = np.full(k, np.iinfo(np.int32).max, dtype=np.int32)
-    dot_at[span[is_dot]] = rel[is_dot]
-    counted = np.cumsum(md) - np.concatenate([[0], np.cumsum(md)])[first][span]
-    place = np.minimum(n_mant[span] - counted, 30)  # digits after this one in the mantissa
-    mantissa = np.bincount(span[md], weights=(c[md] - 48) * _POW10[place[md]], minlength=k)
-    frac = np.bincount(span[md & (rel > dot_at[span])], minlength=k)
-    exponent = np.zeros(k)
-    minus = np.zeros(k, bool)
-    if has_e.any():
-        e_counted = np.cumsum(ed) - np.concatenate([[0], np.cumsum(ed)])[first][span]
-        e_place = np.minimum(np.bincount(span[ed], minlength=k)[span] - e_counted, 30)
-        exponent = np.bincount(span[ed], weights=(c[ed] - 48) * _POW10[e_place[ed]], minlength=k)
-        minus[span[(c == 45) & (rel == e_at[span] + 1)]] = True
-    exponent = np.where(minus, -exponent, exponent) - frac
-    exact = good & (n_mant <= 15) & (np.abs(exponent) <= 22)
-    power = _POW10[np.abs(np.where(exact, exponent, 0)).astype(np.int64)]
-    values = np.where(exponent >= 0, mantissa * power, mantissa / power)
-    values = np.where(b[starts] == 45, -values, values)
-    raw = b.tobytes()
-    for i in np.flatnonzero(good & ~exact).tolist():
-        values[i] = float(raw[starts[i] : ends[i]])
-    return values, good
-
-
-def _parse_batch(bodies: list[str], names: _Namespace) -> list[tuple | None]:
-    """Parse many plain tree bodies at once with whole-array steps.
-
-    The text is cut at its delimiters ``( ) , : ;``; the piece after each delimiter is a tip
-    label (after ``(`` or ``,``), a node label (after ``)``) or a branch length (after ``:``).
-    Tips and ``)`` come in postorder, so node ids are ranks by position, and the parent of a
-    node at depth ``d`` is the first ``)`` after it that closes to depth ``d - 1`` (one
-    ``searchsorted`` over keys ``(depth, position)``). Returns per body ``(parent, length,
-    names, labels)``, or None for any body with a problem: those are read again token by
-    token, so that every error is reported by one parser with its line. Measured on
-    benchmarks/bench_consensus.py (200 taxa x 1,000 trees): 4.5 s token by token, 0.5 s here.
-    """
-    count = len(bodies)
-    raw = (";".join(bodies) + ";").encode()
-    b = np.frombuffer(raw, dtype=np.uint8)
-    kinds = _KIND[b]
-    dpos = np.flatnonzero(kinds)  # the text after delimiter i is raw[dpos[i] + 1 : dpos[i + 1]]
-    dk = kinds[dpos]
-    empty_after = np.diff(dpos, append=len(raw) + 1) == 1
-    is_semi = dk == 5
-    tree_of = np.cumsum(is_semi) - is_semi
-    cum = np.cumsum((dk == 1).astype(np.int64) - (dk == 2))
-    ends = np.flatnonzero(is_semi)
-    depth = cum - np.concatenate([[0], cum[ends[:-1]]])[tree_of]  # after each delimiter
-    ok = (depth[ends] == 0) & (np.minimum.reduceat(depth, np.r_[0, ends[:-1] + 1]) >= 0)
-
-    def spoil(bad: np.ndarray, trees: np.ndarray) -> None:
-        ok[np.unique(trees[bad])] = False
-
-    after = np.append(dk[1:], 5)  # the kind of the next delimiter
-    opener = (dk == 1) | (dk == 3)
-    tip_d = np.flatnonzero(opener & ~(empty_after & (after == 1)))
-    spoil(empty_after[tip_d], tree_of[tip_d])  # an empty tip
-    ev_d = np.sort(np.concatenate([tip_d, np.flatnonzero(dk == 2)]))
-    is_tip = opener[ev_d]
-    ev_tree = tree_of[ev_d]
-    level = depth[ev_d]
-    first = np.searchsorted(ev_tree, np.arange(count))
-    last = np.maximum(np.searchsorted(ev_tree, np.arange(count), "right") - 1, first)
-    closers = np.flatnonzero(~is_tip)
-    if closers.size == 0 or last[-1] >= ev_d.size:
-        return [None] * count
-    ok &= ~is_tip[last] & (level[last] == 0)
-    ok &= np.bincount(ev_tree[level == 0], minlength=count) == 1
-    is_root = np.zeros(ev_d.size, bool)
-    is_root[last] = True
-    band = np.int64(dk.size + 1)
-    key = (level[closers] + 1) * band + ev_d[closers]
-    by_key = np.argsort(key)
-    key = key[by_key]
-    child = np.flatnonzero(~is_root)
-    j = np.minimum(np.searchsorted(key, level[child] * band + ev_d[child], "right"), key.size - 1)
-    parent = np.full(ev_d.size, -1, dtype=np.int64)
-    parent[child] = closers[by_key[j]]
-    spoil(
-        (key[j] // band != level[child]) | (ev_tree[parent[child]] != ev_tree[child]),
-        ev_tree[child],
-    )
-    parent[child] -= first[ev_tree[child]]
-    spoil(after[ev_d] == 1, ev_tree)  # a node followed by '(' (a missing comma)
-    has = np.flatnonzero(after[ev_d] == 4)  # a ':' and a length after the label
-    at = ev_d[has] + 2
-    spoil((dk[at] == 1) | (dk[at] == 4), ev_tree[has])  # '(' or another ':' after it
-    length = np.full(ev_d.size, np.nan)
-    if has.size:
-        values, good = _decimals(b, dpos[at - 1] + 1, dpos[at])
-        length[has] = values
-        spoil(~good, ev_tree[has])  # not a number: the token path names it
-    tips = np.flatnonzero(is_tip)
-    t_start, t_end = dpos[ev_d[tips]] + 1, dpos[ev_d[tips] + 1]
-    numbered = names.numbered()
-    plain_keys = numbered is not None and bool(np.all(t_end > t_start))
-    if plain_keys:  # digits only, no leading zero: the text is the number's own spelling
-        c = b[t_start]
-        plain_keys = bool(np.all((c >= 49) & (c <= 57) | ((c == 48) & (t_end - t_start == 1))))
-        plain_keys = plain_keys and not _joined(b, t_start, t_end).translate(None, b"0123456789,")
-    if plain_keys:
-        # numeric TRANSLATE keys (what MCMC programs write): look them up as an array
-        keys = _decimals(b, t_start, t_end)[0]
-        known = keys < len(numbered)
-        tip_labels = numbered[np.where(known, keys, 0).astype(np.int64)]
-        tip_labels[~known] = None
-        spoil(~known | np.equal(tip_labels, None), ev_tree[tips])
-    else:
-        tip_labels = _joined(b, t_start, t_end).decode().split(",")[:-1]
-        table = names.translate
-        if table or names.taxlabels:
-            mapped = [table.get(x) for x in tip_labels]
-            for i in [i for i, x in enumerate(mapped) if x is None]:
-                try:
-                    mapped[i] = names.name(tip_labels[i], 0)
-                except _Bad:
-                    mapped[i] = tip_labels[i]
-                    ok[ev_tree[tips[i]]] = False
-            tip_labels = mapped
-    slots = np.full(ev_d.size, None, dtype=object)
-    slots[tips] = tip_labels
-    node_names: list[str | None] = slots.tolist()
-    labels = list(node_names)
-    inner = closers[~empty_after[ev_d[closers]]]
-    for v, x, y in zip(inner.tolist(), dpos[ev_d[inner]] + 1, dpos[ev_d[inner] + 1]):
-        labels[v] = raw[x:y].decode()
-    out: list[tuple | None] = [None] * count
-    n_tips = np.bincount(ev_tree[is_tip], minlength=count).tolist()
-    parent32 = parent.astype(np.int32)
-    for t in np.flatnonzero(ok).tolist():
-        a, z = int(first[t]), int(last[t]) + 1
-        names_here = node_names[a:z]
-        if len(set(names_here)) != n_tips[t] + 1:  # a duplicate tip: the token path reports it
-            continue
-        out[t] = (parent32[a:z], length[a:z], names_here, labels[a:z])
-    return out
-
-
-def _skip_to_semicolon(tokens: Iterator[Token]) -> None:
-    for kind, _, _ in tokens:
-        if kind in ";x":
-            return
-
-
-# ---------------------------------------------------------------------------------------------
 # Files
 
 
@@ -561,9 +124,11 @@ class _Reader:
         self.text = text
         self.file = file
         self.problems = Problems()
-        self.names = _Namespace()
-        self.trees: list[_RawTree | None] = []
-        self.pending: list[tuple[int, int, int, str]] = []  # (index, start, shown, body)
+        self.names = Namespace()
+        self.codes: dict[str, int] = {}  # every tip name met, numbered in order
+        self.slots: list[tuple[RawTrees, int] | None] = []  # each tree: (its batch, index)
+        self.pending: list[tuple[int, int, int, str]] = []  # (slot, start, shown, body)
+        self.trees: RawTrees | None = None  # after read(): the trees read, in order
         self._newlines: list[int] | None = None
 
     def line(self, pos: int) -> int:
@@ -577,46 +142,49 @@ class _Reader:
     def full(self) -> bool:
         return len(self.problems.errors) >= _MAX_PROBLEMS
 
-    def tree(self, tokens: _Lexer, first: Token, shown: int = -1) -> None:
+    def tree(self, tokens: Lexer, first: Token, shown: int = -1) -> None:
         """Read one tree starting at token ``first``; ``shown`` is the offset whose line
         problems name (the ``TREE`` command), by default the tree's own start."""
         shown = first[2] if shown < 0 else shown
         if first[0] in "(c":
-            plain = _plain_body(self.text, first[2])
+            plain = plain_body(self.text, first[2])
             if plain is not None:  # parsed later with the others, in one batch
-                self.pending.append((len(self.trees), first[2], shown, plain[0]))
-                self.trees.append(None)
+                self.pending.append((len(self.slots), first[2], shown, plain[0]))
+                self.slots.append(None)
                 tokens.pos = plain[1]
                 return
+        self.slots.append(self.tokens_tree(tokens, first, shown))
+
+    def tokens_tree(self, tokens: Lexer, first: Token, shown: int) -> tuple[RawTrees, int] | None:
+        """One tree token by token, or None after recording its problem."""
         try:
-            raw = _parse_tree(tokens, first, self.names)
-            raw.pos = shown
-            self.trees.append(raw)
-        except _Bad as bad:
+            raw = parse_tree_tokens(tokens, first, self.names)
+        except Bad as bad:
             self.error(bad.pos, bad.message, bad.hint)
             if not bad.at_end:
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
+            return None
+        return _one_tree(raw, shown, self.codes), 0
 
     def flush(self) -> None:
         """Parse the trees waiting for the batch parser; any it refuses go token by token."""
         if not self.pending:
             return
-        parsed = _parse_batch([body for _, _, _, body in self.pending], self.names)
-        for (index, start, shown, _), result in zip(self.pending, parsed):
-            if result is not None:
-                self.trees[index] = _RawTree(shown, *result)
+        parsed, ok = parse_batch([body for _, _, _, body in self.pending], self.names, self.codes)
+        k = 0
+        for (slot, start, shown, _), good in zip(self.pending, ok.tolist()):
+            if good:
+                parsed.pos[k] = shown
+                self.slots[slot] = (parsed, k)
+                k += 1
                 continue
-            tokens = _Lexer(self.text)
+            tokens = Lexer(self.text)
             tokens.pos = start
-            try:
-                self.trees[index] = _parse_tree(tokens, next(tokens), self.names)
-                self.trees[index].pos = shown
-            except _Bad as bad:
-                self.error(bad.pos, bad.message, bad.hint)
+            self.slots[slot] = self.tokens_tree(tokens, next(tokens), shown)
         self.pending = []
 
     def read(self) -> None:
-        tokens = _Lexer(self.text)
+        tokens = Lexer(self.text)
         first = next(tokens, None)
         while first is not None and first[0] == "c":
             first = next(tokens, None)
@@ -632,7 +200,7 @@ class _Reader:
                     self.tree(tokens, token)
                 token = next(tokens, None)
         self.flush()
-        self.trees = [raw for raw in self.trees if raw is not None]
+        self.trees = _assemble([slot for slot in self.slots if slot is not None])
 
     # NEXUS --------------------------------------------------------------------------------
 
@@ -654,11 +222,11 @@ class _Reader:
                 return
             if kind != "w" or value.upper() != "BEGIN":
                 self.error(pos, f"expected BEGIN, found {value or kind!r}")
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
                 continue
             begin, errors = pos, len(self.problems.errors)
             kind, block, pos = next(tokens, ("", "", pos))
-            _skip_to_semicolon(tokens)
+            skip_to_semicolon(tokens)
             block = block.upper()
             if block == "TREES":
                 closed = self.trees_block(tokens)
@@ -682,10 +250,10 @@ class _Reader:
             if token is None:
                 return False
             if token[0] == "w" and token[1].upper() in ("END", "ENDBLOCK"):
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
                 return True
             if token[0] != ";":
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
 
     def taxa_block(self, tokens: Iterator[Token]) -> bool:
         while True:
@@ -694,10 +262,10 @@ class _Reader:
                 return False
             word = token[1].upper() if token[0] == "w" else ""
             if word in ("END", "ENDBLOCK"):
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
                 return True
             if word != "TAXLABELS":
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
                 continue
             for kind, value, pos in tokens:
                 if kind == ";":
@@ -719,14 +287,14 @@ class _Reader:
                 return True
             word = value.upper() if kind == "w" else ""
             if word in ("END", "ENDBLOCK"):
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
                 return True
             if word == "TRANSLATE":
                 self.translate(tokens)
             elif word in ("TREE", "UTREE"):
                 self.tree_command(tokens, pos)
             else:
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
         return True
 
     def translate(self, tokens: Iterator[Token]) -> None:
@@ -738,7 +306,7 @@ class _Reader:
                 pair.append(value)
                 if len(pair) > 2:
                     self.error(pos, f"TRANSLATE: unexpected {value!r} (missing ',')")
-                    _skip_to_semicolon(tokens)
+                    skip_to_semicolon(tokens)
                     return
                 continue
             if kind in ",;":
@@ -754,11 +322,19 @@ class _Reader:
                 continue
             self.error(pos, value if kind == "x" else f"TRANSLATE: unexpected {kind!r}")
             if kind != "x":
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
             return
 
-    def tree_command(self, tokens: Iterator[Token], start: int) -> None:
+    def tree_command(self, tokens: Lexer, start: int) -> None:
         """``TREE [*] name [comments] = newick ;``"""
+        head = _TREE_HEAD.match(self.text, tokens.pos)
+        if head is not None:  # the usual command up to the tree's '(' in one match
+            plain = plain_body(self.text, head.end() - 1)
+            if plain is not None:
+                self.pending.append((len(self.slots), head.start(1), start, plain[0]))
+                self.slots.append(None)
+                tokens.pos = plain[1]
+                return
         for kind, value, pos in tokens:
             if kind == "=":
                 break
@@ -766,7 +342,7 @@ class _Reader:
                 continue
             self.error(pos, value if kind == "x" else f"TREE: expected '=', found {kind!r}")
             if kind not in "x;":
-                _skip_to_semicolon(tokens)
+                skip_to_semicolon(tokens)
             return
         else:
             self.error(start, "truncated TREE command at end of file")
@@ -800,16 +376,16 @@ def read_tree_file(path: str | Path, *, burnin: float = 0.0, thin: int = 1) -> T
     reader = _Reader(text, file)
     reader.read()
     reader.problems.raise_if_any()
-    if not reader.trees:
+    raw = reader.trees
+    if raw is None or not len(raw):
         raise AtlasError(_problem(file, "no trees found"))
-    taxa = _check_tips(reader)
-    read = len(reader.trees)
+    taxa = _check_tips(reader, raw)
+    read = len(raw)
     dropped = math.floor(read * burnin)
-    kept = reader.trees[dropped::thin]
-    if not kept:
+    kept = np.arange(dropped, read, thin)
+    if not kept.size:
         raise AtlasError(_problem(file, f"burn-in {burnin} drops all {read} trees"))
-    index = {name: i for i, name in enumerate(taxa)}
-    trees = [_to_tree(raw, taxa, index) for raw in kept]
+    trees = _to_trees(raw.take(kept), taxa, reader.codes)
     return TreeSample(file, taxa, trees, read, dropped, thin)
 
 
@@ -817,35 +393,86 @@ def _problem(file: str, message: str) -> Problem:
     return Problem(file, None, message)
 
 
-def _check_tips(reader: _Reader) -> tuple[str, ...]:
-    """The sorted tip labels of the first tree; every other tree must have the same ones."""
-    first = reader.trees[0]
-    expected = {n for n in first.names if n is not None}
-    for i, raw in enumerate(reader.trees[1:], start=2):
-        tips = {n for n in raw.names if n is not None}
-        if tips != expected:
-            missing = ", ".join(sorted(expected - tips)) or "none"
-            extra = ", ".join(sorted(tips - expected)) or "none"
-            reader.error(
-                raw.pos,
-                f"tree {i} has other tips than tree 1 (line {reader.line(first.pos)}): "
-                f"missing {missing}; extra {extra}",
-            )
-            if reader.full():
-                break
+def _one_tree(raw: RawTree, pos: int, codes: dict[str, int]) -> RawTrees:
+    """A tree from the token parser as a batch of one, its tip names numbered in ``codes``."""
+    code = [-1 if n is None else codes.setdefault(n, len(codes)) for n in raw.names]
+    labels = {
+        v: label
+        for v, (name, label) in enumerate(zip(raw.names, raw.labels))
+        if name is None and label is not None
+    }
+    return RawTrees(
+        np.array(raw.parent, dtype=np.int32),
+        np.array(raw.length, dtype=np.float64),
+        np.array(code, dtype=np.int32),
+        [labels or None],
+        np.array([0, len(code)], dtype=np.int64),
+        [pos],
+    )
+
+
+def _assemble(slots: list[tuple[RawTrees, int]]) -> RawTrees | None:
+    """The trees of ``slots`` in order, taking runs of one batch whole."""
+    runs: list[list] = []  # [batch, first, end]
+    for batch, k in slots:
+        if runs and runs[-1][0] is batch and runs[-1][2] == k:
+            runs[-1][2] = k + 1
+        else:
+            runs.append([batch, k, k + 1])
+    if not runs:
+        return None
+    return RawTrees.join([batch.take(np.arange(a, z)) for batch, a, z in runs])
+
+
+def _check_tips(reader: _Reader, raw: RawTrees) -> tuple[str, ...]:
+    """The sorted tip labels of the first tree; every other tree must have the same ones.
+
+    Neither parser lets a tip appear twice in a tree, so a tree has the first tree's tips when
+    it has as many and each is one of them: two whole-array counts, then words for the trees
+    that differ.
+    """
+    names = list(reader.codes)
+    size = np.diff(raw.offsets)
+    tree_of = np.repeat(np.arange(len(raw)), size)
+    is_tip = raw.code >= 0
+    first = raw.code[: raw.offsets[1]]
+    first = first[first >= 0]
+    in_first = np.zeros(len(names) + 1, dtype=bool)
+    in_first[first] = True
+    n_tips = np.bincount(tree_of[is_tip], minlength=len(raw))
+    strangers = np.bincount(tree_of[is_tip & ~in_first[raw.code]], minlength=len(raw))
+    expected = {names[c] for c in first.tolist()}
+    for i in np.flatnonzero((n_tips != first.size) | (strangers > 0)).tolist():
+        codes = raw.code[raw.offsets[i] : raw.offsets[i + 1]]
+        tips = {names[c] for c in codes[codes >= 0].tolist()}
+        missing = ", ".join(sorted(expected - tips)) or "none"
+        extra = ", ".join(sorted(tips - expected)) or "none"
+        reader.error(
+            raw.pos[i],
+            f"tree {i + 1} has other tips than tree 1 (line {reader.line(raw.pos[0])}): "
+            f"missing {missing}; extra {extra}",
+        )
+        if reader.full():
+            break
     reader.problems.raise_if_any()
     return tuple(sorted(expected))
 
 
-def _to_tree(raw: _RawTree, taxa: tuple[str, ...], index: dict[str, int]) -> Tree:
-    tip = [-1 if n is None else index[n] for n in raw.names]
-    return Tree(
-        np.array(raw.parent, dtype=np.int32),
-        np.array(raw.length, dtype=np.float64),
-        np.array(tip, dtype=np.int32),
-        taxa,
-        tuple(raw.labels),
-    )
+def _to_trees(raw: RawTrees, taxa: tuple[str, ...], codes: dict[str, int]) -> list[Tree]:
+    """The trees over ``taxa`` (which holds every tip name of ``raw``), built all at once."""
+    index = {name: i for i, name in enumerate(taxa)}
+    taxon_of = np.array([index.get(name, -1) for name in codes] + [-1], dtype=np.int32)
+    tip = taxon_of[raw.code]  # code -1 takes the last entry
+    label_of = np.array(list(codes) + [None], dtype=object)
+    every = label_of[raw.code].tolist()
+    labels = []
+    for k, (a, z) in enumerate(zip(raw.offsets[:-1].tolist(), raw.offsets[1:].tolist())):
+        here = every[a:z]
+        if raw.labels[k]:
+            for v, label in raw.labels[k].items():
+                here[v] = label
+        labels.append(tuple(here))
+    return trees_from_arrays(raw.parent, raw.length, tip, raw.offsets, taxa, labels)
 
 
 def parse_newick(text: str, *, taxa: Sequence[str] | None = None, file: str = "<newick>") -> Tree:
@@ -862,16 +489,18 @@ def parse_newick(text: str, *, taxa: Sequence[str] | None = None, file: str = "<
     reader = _Reader(text, file)
     reader.read()
     reader.problems.raise_if_any()
-    if len(reader.trees) != 1:
-        raise AtlasError(_problem(file, f"expected one tree, found {len(reader.trees)}"))
-    raw = reader.trees[0]
-    names = sorted(n for n in raw.names if n is not None)
+    raw = reader.trees
+    found = 0 if raw is None else len(raw)
+    if raw is None or found != 1:
+        raise AtlasError(_problem(file, f"expected one tree, found {found}"))
+    names = list(reader.codes)
+    names = sorted(names[c] for c in raw.code[raw.code >= 0].tolist())
     space = tuple(names) if taxa is None else tuple(taxa)
-    index = {name: i for i, name in enumerate(space)}
+    index = set(space)
     unknown = [n for n in names if n not in index]
     if unknown:
         raise AtlasError(_problem(file, "tips not in the taxa: " + ", ".join(unknown)))
-    return _to_tree(raw, space, index)
+    return _to_trees(raw, space, reader.codes)[0]
 
 
 _NEEDS_QUOTES = re.compile(r"[\s()\[\]',:;=]")
