@@ -1,0 +1,120 @@
+"""The build cache is never stale, survives corruption, and --jobs never changes the output.
+
+The reference every cached build is compared with is a clean build of the same source with
+the cache switched off (``use_cache=False`` neither reads nor writes it). The atlas is the
+starter of ``atlas new`` (invented carved spoons) with an invented rules file, contacts file
+and image added, so every kind of input can be changed.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from atlas.build import build
+from atlas.cache import FOLDER
+
+from .conftest import write_atlas
+
+SVG = ('<svg xmlns="http://www.w3.org/2000/svg" width="40" height="20" viewBox="0 0 40 20">'
+       '<rect width="40" height="20" fill="#{}"/></svg>\n')
+EXTRA = {
+    "rules.toml": '[[rule]]\nwhen = { character = "hook", state = "1" }\n'
+                  'needs = { character = "handle", state = "1" }\n',
+    "contacts.csv": "from,to,characters,note\nspoon-a,spoon-d,notch,Invented exchange.\n",
+    "media/spoon-a.svg": SVG.format("336699"),
+}
+
+
+def _files(out: Path) -> dict[str, bytes]:
+    return {p.relative_to(out).as_posix(): p.read_bytes() for p in sorted(out.rglob("*"))
+            if p.is_file()}
+
+
+def _edit(root: Path, name: str, old: str, new: str) -> None:
+    path = root / name
+    text = path.read_text("utf-8")
+    assert old in text, (name, old)
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+
+
+@pytest.fixture
+def source(starter: Path) -> Path:
+    write_atlas(starter, EXTRA)
+    _edit(starter, "atlas.toml", 'gazetteer = "places.csv"\n',
+          'gazetteer = "places.csv"\nrules = "rules.toml"\ncontacts = "contacts.csv"\n')
+    _edit(starter, "objects/spoon-a.md", "sources:\n",
+          'images:\n  - file: "media/spoon-a.svg"\n    alt: "A blue rectangle standing in '
+          'for a photograph (invented)"\n    credit: "Invented"\n    licence: "CC-BY-4.0"\n'
+          "sources:\n")
+    return starter
+
+
+def _same_as_clean(root: Path, tmp: Path, tag: str) -> None:
+    cached = build(root, tmp / f"cached-{tag}", use_cache=True)
+    clean = build(root, tmp / f"clean-{tag}", use_cache=False)
+    assert cached.pages == clean.pages
+    a, b = _files(tmp / f"cached-{tag}"), _files(tmp / f"clean-{tag}")
+    assert a.keys() == b.keys(), tag
+    different = [p for p in a if a[p] != b[p]]
+    assert not different, (tag, different[:5])
+
+
+CHANGES = [  # (what, file, old text, new text); applied one after the other
+    ("trees", "trees.nex", "(5:1,6:1):1);", "(5:3,6:1):1);"),
+    ("matrix", "matrix.csv", "spoon-c,0,1,0,0", "spoon-c,0,1,1,0"),
+    ("gazetteer", "places.csv", "-31.80,-15.05", "-31.95,-15.25"),
+    ("object note", "objects/spoon-b.md", "so it is coded unknown", "so it is coded as unknown"),
+    ("character note", "characters/hook.md", "label: Hooked handle end", "label: Hook at the end"),
+    ("clade note", "clades/hooked.md", "title:", "title: Renamed"),
+    ("free page", "pages/about.md", "invented", "made up"),
+    ("rules", "rules.toml", 'state = "1" }\nneeds', 'state = "0" }\nneeds'),
+    ("contacts", "contacts.csv", "Invented exchange.", "An invented exchange of notches."),
+    ("analysis settings", "atlas.toml", 'rates = "equal"', 'rates = "gamma4"'),
+    ("profile settings", "atlas.toml", '[profiles.public]\naccess = ["public"]',
+     '[profiles.public]\naccess = ["public", "community"]'),
+]
+
+
+def test_cached_rebuilds_match_a_clean_build_after_every_kind_of_change(source, tmp_path):
+    build(source, tmp_path / "first", use_cache=True)
+    assert (source / FOLDER / ".gitignore").is_file()
+    for what, name, old, new in CHANGES:
+        _edit(source, name, old, new)
+        _same_as_clean(source, tmp_path, what.replace(" ", "-"))
+    (source / "media" / "spoon-a.svg").write_text(SVG.format("993366"), encoding="utf-8")
+    _same_as_clean(source, tmp_path, "image")
+    # the reference itself moved: the last cached build shows the last edits
+    page = (tmp_path / "cached-image" / "pages" / "about.html").read_text("utf-8")
+    assert "made up" in page
+
+
+def test_a_corrupt_or_deleted_cache_is_rebuilt(source, tmp_path):
+    build(source, tmp_path / "warm", use_cache=True)
+    entries = [p for p in (source / FOLDER).rglob("*.pickle")]
+    assert {p.parent.name for p in entries} >= {"trees", "analysis", "audit"}
+    for k, path in enumerate(entries):  # truncated, garbage, empty
+        path.write_bytes([b"", b"not a pickle", path.read_bytes()[:20]][k % 3])
+    _same_as_clean(source, tmp_path, "corrupt")
+    for path in (source / FOLDER).rglob("*"):
+        if path.is_file():
+            path.unlink()
+    _same_as_clean(source, tmp_path, "deleted")
+
+
+def test_the_cache_is_not_written_when_switched_off(source, tmp_path):
+    build(source, tmp_path / "off", use_cache=False)
+    assert not (source / FOLDER).exists()
+    _edit(source, "atlas.toml", 'licence = "CC-BY-4.0"\n', 'licence = "CC-BY-4.0"\ncache = false\n')
+    build(source, tmp_path / "off-config")
+    assert not (source / FOLDER).exists()
+
+
+def test_output_is_identical_for_any_number_of_jobs(source, tmp_path, monkeypatch):
+    monkeypatch.setattr("atlas.analysis.sampling.CHUNK", 1)  # so the 3 trees make 3 tasks
+    outputs = []
+    for jobs in (1, 2, 3):
+        build(source, tmp_path / f"jobs-{jobs}", jobs=jobs, use_cache=False)
+        outputs.append(_files(tmp_path / f"jobs-{jobs}"))
+    assert outputs[0] == outputs[1] == outputs[2]
