@@ -15,6 +15,11 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
+# Import the pipeline module now, so that the function ``build`` below replaces the submodule
+# attribute that Python sets on the package when ``atlas.build`` is first imported; imported
+# later (by ``load``), the submodule would hide the function.
+from . import build as _pipeline  # noqa: E402, F401
+
 
 def load(directory, profile: str = "public"):
     """Read and link the atlas source in ``directory``; return the linked :class:`Atlas`."""

@@ -13,7 +13,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from . import __version__
-from .audit import audit_leaks, audit_links
+from .audit import audit_budget, audit_leaks, audit_links, audit_plotly, page_weights
+from .cache import Cache
 from .config import Config, load_config
 from .errors import AtlasError, Problem, Problems
 from .link import link
@@ -38,6 +39,7 @@ class BuildReport:
     pages: int
     files: int
     warnings: list[Problem] = field(default_factory=list)
+    largest: list[tuple[str, int]] = field(default_factory=list)  # (page, bytes), largest first
 
 
 def load(root: Path | str, profile: str = "public", step: Step = _quiet) -> Atlas:
@@ -47,69 +49,73 @@ def load(root: Path | str, profile: str = "public", step: Step = _quiet) -> Atla
     return load_config_atlas(config, profile, step)
 
 
-def load_config_atlas(config: Config, profile: str = "public", step: Step = _quiet) -> Atlas:
+def load_config_atlas(config: Config, profile: str = "public", step: Step = _quiet,
+                      cache: Cache | None = None) -> Atlas:
     problems = Problems()
     chosen = config.profile(profile)
     step("Reading sources")
-    sources = load_sources(config, problems)
+    sources = load_sources(config, problems, cache)
     step("Linking objects, characters, places and notes")
     return link(sources, chosen, problems)
 
 
-def render(atlas: Atlas, results: Results,
-           step: Step = _quiet) -> tuple[SitePlan, dict[str, bytes]]:
-    """Plan and render every page; return the plan and all generated files as bytes."""
-    from .site.plan import plan_site
-    from .site.render import SiteInfo, find_theme, render_site
+def render(atlas: Atlas, results: Results, step: Step = _quiet, *, jobs: int = 1,
+           cache: Cache | None = None) -> tuple[SitePlan, dict[str, bytes]]:
+    """Plan and render every page in every language (the default at the root, the others
+    under ``<lang>/``); return the plan and all generated files as bytes.
 
-    step("Planning pages")
-    plan = plan_site(atlas, results)
-    theme = find_theme("kiosk" if atlas.profile.kiosk else atlas.config.theme)
-    site = SiteInfo(
-        title=atlas.config.title, licence=atlas.config.licence, nav=plan.nav,
-        kiosk=atlas.profile.kiosk, idle_seconds=atlas.profile.idle_seconds,
-        language=atlas.config.languages[0], generator=f"lineage atlas builder {__version__}",
-    )
-    step(f"Rendering {len(plan.pages)} pages")
-    html = render_site(plan, theme, site)
-    files: dict[str, bytes] = {path: text.encode("utf-8") for path, text in html.items()}
-    files.update({path: text.encode("utf-8") for path, text in plan.data.items()})
-    files.update({path: text.encode("utf-8") for path, text in plan.files.items()})
-    files.update(plan.media)
-    for folder in reversed(theme.asset_folders):  # a child theme's assets win
-        for asset in sorted(folder.rglob("*")):
-            if asset.is_file():
-                files[f"assets/{asset.relative_to(folder).as_posix()}"] = asset.read_bytes()
-    return plan, files
+    Pages render in ``jobs`` processes; unchanged pages come from ``cache`` (the output is
+    byte for byte the same either way)."""
+    from .site.languages import render_languages
+    from .site.render import SiteInfo
+
+    def make_site(plan: SitePlan, lang: str, languages, prefix: str) -> SiteInfo:
+        return SiteInfo(
+            title=atlas.config.title, licence=atlas.config.licence, nav=plan.nav,
+            kiosk=atlas.profile.kiosk, idle_seconds=atlas.profile.idle_seconds,
+            language=lang, generator=f"lineage atlas builder {__version__}",
+            languages=languages, prefix=prefix,
+        )
+
+    return render_languages(atlas, results, step, make_site, jobs=jobs, cache=cache,
+                            cache_label=atlas.profile.name)
 
 
 def build(root: Path | str, out: Path | str | None = None, profile: str = "public", *,
-          links: str = "error", step: Step = _quiet) -> BuildReport:
+          links: str = "error", step: Step = _quiet, jobs: int = 1,
+          use_cache: bool = True) -> BuildReport:
     """Build the site for ``profile`` into ``out`` (default: ``build`` in the current folder).
 
     ``links="warn"`` reports broken internal links as warnings instead of failing the build.
+    ``jobs`` processes share the analysis over the sample and the rendering; the output is the
+    same for any number. ``use_cache=False`` (or ``cache = false`` in atlas.toml) neither reads
+    nor writes the on-disk cache (:mod:`atlas.cache`).
     """
     root = Path(root)
     out = Path(out) if out is not None else Path("build")
     step("Reading atlas.toml")
     config = load_config(root)
     check_output(out, config.root)  # refuse a dangerous --out before any work
-    atlas = load_config_atlas(config, profile, step)
+    cache = Cache.for_source(config.root, use_cache and config.cache)
+    atlas = load_config_atlas(config, profile, step, cache)
     # Imported here: SciPy and the site modules load in seconds, and bad input should be
     # reported before paying for them.
     from .analysis.results import analyse
 
     step("Analysing: summary tree, support, parsimony, likelihood")
-    results = analyse(atlas)
-    plan, files = render(atlas, results, step)
-    step("Auditing links and withheld material")
+    results = analyse(atlas, jobs=jobs, cache=cache)
+    plan, files = render(atlas, results, step, jobs=jobs, cache=cache)
+    step("Auditing links, withheld material and page weight")
     all_files = dict(files)
     all_files.update({p: b"" for p in plan.copies})
     leaks = audit_leaks({**files, **{p: src.read_bytes() for p, src in plan.copies.items()
                                      if not p.startswith("assets/")}}, atlas.withheld_text)
     if leaks:
         raise AtlasError(leaks)
-    link_problems = audit_links(all_files)
+    link_problems = audit_links(all_files, cache)
+    weight = audit_budget(files, config.page_budget) + audit_plotly(files)
+    if weight:
+        raise AtlasError(weight)
     warnings = list(atlas.warnings)
     if link_problems:
         if links == "error":
@@ -117,4 +123,5 @@ def build(root: Path | str, out: Path | str | None = None, profile: str = "publi
         warnings += [Problem(p.file, p.line, p.message, p.hint, "warning") for p in link_problems]
     step(f"Writing {len(files) + len(plan.copies)} files to {out}")
     write_site(files, plan.copies, out, config.root)
-    return BuildReport(out, len(plan.pages), len(files) + len(plan.copies), warnings)
+    return BuildReport(out, len(plan.pages), len(files) + len(plan.copies), warnings,
+                       page_weights(files))

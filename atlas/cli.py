@@ -88,11 +88,14 @@ def check(directory: Path, profile: str) -> None:
     def run():
         with _progress() as step:
             atlas = load(directory, profile, step)
-        _print_problems(list(atlas.warnings))
+        from .site.languages import untranslated_report
+
+        warnings = [*atlas.warnings, *untranslated_report(atlas)]  # what shows untranslated
+        _print_problems(warnings)
         visible = len(atlas.visible_objects())
         err.print(f"OK: {len(atlas.objects)} objects ({visible} published by profile "
                   f"{profile!r}), {len(atlas.characters)} characters, {len(atlas.places)} places, "
-                  f"{len(atlas.sample.trees)} trees used; {len(atlas.warnings)} warnings.",
+                  f"{len(atlas.sample.trees)} trees used; {len(warnings)} warnings.",
                   markup=False)
 
     _run(run)
@@ -107,15 +110,25 @@ def check(directory: Path, profile: str) -> None:
 @click.option("--links", type=click.Choice(["error", "warn"]), default="error",
               show_default=True, help="Broken internal links fail the build, or only warn.")
 @click.option("--quiet", "-q", is_flag=True, help="Print only problems.")
-def build(directory: Path, out: Path, profile: str, links: str, quiet: bool) -> None:
+@click.option("--jobs", "-j", default=1, show_default=True, type=click.IntRange(1, 64),
+              help="Processes for the analysis over the sample and for rendering (the output "
+              "is the same for any number).")
+@click.option("--no-cache", is_flag=True,
+              help="Neither read nor write the build cache (.atlas-cache/ in the source).")
+def build(directory: Path, out: Path, profile: str, links: str, quiet: bool, jobs: int,
+          no_cache: bool) -> None:
     """Build the static site from an atlas source."""
     from .build import build as run_build
 
     def run():
         with _progress(quiet) as step:
-            report = run_build(directory, out, profile, links=links, step=step)
+            report = run_build(directory, out, profile, links=links, step=step, jobs=jobs,
+                               use_cache=not no_cache)
         _print_problems(report.warnings)
         if not quiet:
+            err.print("Largest pages: " + ", ".join(
+                f"{path} ({size / 1000:.1f} KB)" for path, size in report.largest),
+                markup=False)
             err.print(f"Built {report.pages} pages ({report.files} files) into {report.out}. "
                       f"Open {report.out / 'index.html'}", markup=False)
 
@@ -175,12 +188,16 @@ def figures(directory: Path, out: Path, characters: tuple[str, ...], profile: st
 @click.option("--profile", default="public", show_default=True)
 @click.option("--port", default=8000, show_default=True, type=click.IntRange(0, 65535))
 @click.option("--once", is_flag=True, hidden=True, help="Build, serve one poll cycle, stop.")
-def preview(directory: Path, out: Path, profile: str, port: int, once: bool) -> None:
+@click.option("--jobs", "-j", default=1, show_default=True, type=click.IntRange(1, 64),
+              help="Processes for the analysis and rendering.")
+@click.option("--no-cache", is_flag=True, help="Neither read nor write the build cache.")
+def preview(directory: Path, out: Path, profile: str, port: int, once: bool, jobs: int,
+            no_cache: bool) -> None:
     """Build, serve the site on 127.0.0.1 and rebuild when a source file changes."""
     from .preview import serve
 
     _run(lambda: serve(directory, out, profile, port, once=once, say=lambda m: err.print(
-        m, markup=False)))
+        m, markup=False), jobs=jobs, use_cache=not no_cache))
 
 
 if __name__ == "__main__":  # pragma: no cover

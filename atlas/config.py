@@ -70,6 +70,12 @@ TOP = (
     Option("base_url", str, "", "Where the site will be published (for sitemap and citations)."),
     Option("credits", list, [], "Citations and acknowledgements for the credits page, one per "
            "entry (e.g. the published datasets the atlas is built from).", check=_string_list),
+    Option("cache", bool, True, "Keep analysis results and rendered pages in a hidden "
+           ".atlas-cache/ folder of the atlas source, so a rebuild redoes only what changed "
+           "(safe to delete; `atlas build --no-cache` ignores it)."),
+    Option("page_budget", int, 60, "Largest HTML page, in KB (1,000 bytes), that the audit "
+           "accepts; shared assets are not counted (the browser loads them once).",
+           check=_positive),
 )
 SOURCES = (
     Option("trees", str, "trees.nex", "Newick or NEXUS: one tree, or a posterior sample."),
@@ -140,6 +146,8 @@ class Config:
     analysis: dict[str, Any]
     columns: dict[str, dict[str, str]]
     profiles: dict[str, Profile] = field(default_factory=dict)
+    cache: bool = True  # keep the on-disk build cache in <root>/.atlas-cache/
+    page_budget: int = 60  # KB per HTML page, checked by the audit
 
     @property
     def file(self) -> Path:
@@ -343,4 +351,6 @@ def load_config(root: Path | str) -> Config:
                   "outgroup": tuple(outgroup)},
         columns=columns,
         profiles=profiles,
+        cache=top["cache"],
+        page_budget=top["page_budget"],
     )

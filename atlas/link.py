@@ -22,7 +22,7 @@ import numpy as np
 
 from .config import ACCESS_LEVELS, Profile
 from .errors import AtlasError, Problems, did_you_mean
-from .model import ArtObject, Atlas, Character, CladeNote, Image, Page
+from .model import ArtObject, Atlas, Character, CladeNote, Evidence, Image, Page
 from .sources.gazetteer import Place
 from .sources.load import Sources
 from .sources.notes import Note
@@ -119,7 +119,24 @@ def link(sources: Sources, profile: Profile, problems: Problems | None = None) -
         pages=pages, contacts=tuple(contacts), rules=tuple(sources.rules),
         media=dict(sources.media), basemap=sources.basemap, warnings=tuple(problems.warnings),
         withheld_text=withheld_text(sources, profile, objects, places),
+        evidence=_evidence(sources, objects, column_ids),
     )
+
+
+def _evidence(sources: Sources, objects: dict[str, ArtObject],
+              column_ids: set[str]) -> dict[tuple[str, str], tuple[Evidence, ...]]:
+    """The ledger's rows for the objects the profile shows (a withheld object shows none)."""
+    table = sources.evidence
+    if table is None:
+        return {}
+    out: dict[tuple[str, str], tuple[Evidence, ...]] = {}
+    for (oid, cid), rows in sorted(table.by_cell().items()):
+        obj = objects.get(oid)
+        if obj is None or obj.withheld or cid not in column_ids:
+            continue
+        out[oid, cid] = tuple(Evidence(r.state, r.source, r.note, table.file, r.line)
+                              for r in rows)
+    return out
 
 
 def _passages(text: str, minimum: int = 24) -> list[str]:
@@ -152,20 +169,34 @@ def withheld_text(sources: Sources, profile: Profile, objects: dict[str, ArtObje
             if note.meta.get("title"):
                 canaries.add(str(note.meta["title"]))
             canaries.update(_passages(note.body))
+            for t in note.translations.values():  # its translations are withheld too
+                if t.meta.get("title"):
+                    canaries.add(str(t.meta["title"]))
+                canaries.update(_passages(t.body))
             for image in note.meta.get("images") or []:
                 if isinstance(image, dict) and image.get("file"):
                     canaries.add(str(image["file"]).rsplit("/", 1)[-1])
     for p in sources.places:
         if p.id not in places:
-            canaries.update({p.id, p.name})
+            canaries.update({p.id, p.name, *p.names.values()})
     for n in sources.clades:
         if str(n.meta.get("access", "public")) not in profile.access:
-            canaries.update(_passages(n.body))
-            if n.meta.get("title"):
-                canaries.add(str(n.meta["title"]))
+            for version in (n, *n.translations.values()):
+                canaries.update(_passages(version.body))
+                if version.meta.get("title"):
+                    canaries.add(str(version.meta["title"]))
     for n in sources.pages:
         if str(n.meta.get("access", "public")) not in profile.access:
-            canaries.update(_passages(n.body))
+            for version in (n, *n.translations.values()):
+                canaries.update(_passages(version.body))
+    if sources.evidence is not None:  # what a withheld object's coding was read from
+        said = {(r.source, r.note) for r in sources.evidence.rows
+                if r.object in objects and not objects[r.object].withheld}
+        shared = {t for pair in said for t in pair}
+        for r in sources.evidence.rows:
+            if r.object in objects and objects[r.object].withheld:
+                canaries.update(t for t in (*_passages(r.note), *_passages(r.source))
+                                if t not in shared)
     published = {o.title for o in objects.values() if not o.withheld}
     published |= {o.id for o in objects.values() if not o.withheld}
     published |= {p.name for p in places.values()} | {p.id for p in places.values()}
@@ -207,7 +238,11 @@ def _match_loosely(sources: Sources, taxa: tuple[str, ...], problems: Problems) 
     places = [replace(p, id=rename(p.id)) for p in sources.places]
     if len({p.id for p in places}) != len(places):
         places = sources.places
-    return replace(sources, matrix=matrix, places=places)
+    evidence = sources.evidence
+    if evidence is not None:
+        evidence = replace(evidence, rows=tuple(replace(r, object=rename(r.object))
+                                                for r in evidence.rows))
+    return replace(sources, matrix=matrix, places=places, evidence=evidence)
 
 
 # --- characters and the matrix ------------------------------------------------------------
@@ -476,6 +511,7 @@ def _objects(sources: Sources, profile: Profile, taxa: tuple[str, ...], places: 
             body=note.body, has_note=True, has_row=has_row,
             translations={lang: {"title": str(t.meta.get("title") or meta.get("title") or oid),
                                  "body": t.body} for lang, t in note.translations.items()},
+            file=note.file,
         )
     _report_gaps(gaps, places, sources, problems)
     return objects
@@ -556,8 +592,16 @@ def _clade_notes(sources: Sources, profile: Profile, taxa: tuple[str, ...],
         if bad or _access(note, problems) not in profile.access:
             continue
         out.append(CladeNote(note.stem, str(note.meta.get("title") or note.stem),
-                             tuple(sorted(str(m) for m in members)), note.body, note.file))
+                             tuple(sorted(str(m) for m in members)), note.body, note.file,
+                             translations=_translations(note)))
     return tuple(out)
+
+
+def _translations(note: Note) -> dict[str, dict]:
+    """A note's translations as {lang: {title, body}}; a translation without a title keeps
+    the note's."""
+    return {lang: {"title": str(t.meta.get("title") or note.meta.get("title") or note.stem),
+                   "body": t.body} for lang, t in sorted(note.translations.items())}
 
 
 def _pages(sources: Sources, profile: Profile, problems: Problems) -> tuple[Page, ...]:
@@ -570,5 +614,5 @@ def _pages(sources: Sources, profile: Profile, problems: Problems) -> tuple[Page
             problems.error(note.file, note.line("order"), "order must be a whole number")
             order = 100
         out.append(Page(slug(note.stem), str(note.meta.get("title") or note.stem.title()),
-                        note.body, order))
+                        note.body, order, translations=_translations(note), file=note.file))
     return tuple(sorted(out, key=lambda p: (p.order, p.name)))

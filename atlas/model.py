@@ -16,6 +16,7 @@ import numpy as np
 
 from .config import Config, Profile
 from .errors import Problem
+from .i18n import Translator
 from .sources.gazetteer import Place
 from .sources.tables import Contact, Rule
 from .sources.trees import TreeSample
@@ -69,6 +70,10 @@ class ArtObject:
     has_note: bool = False
     has_row: bool = True
     translations: dict[str, dict] = field(default_factory=dict)  # lang -> {title, body}
+    # Set for one language's rendering (atlas.site.languages.localise) when the note is shown
+    # untranslated: the language its title and body are written in, for a ``lang`` attribute.
+    fallback_lang: str = ""
+    file: str = ""  # the note's file, for the untranslated-content report
 
 
 @dataclass(frozen=True)
@@ -78,6 +83,8 @@ class CladeNote:
     members: tuple[str, ...]
     body: str
     file: str
+    translations: dict[str, dict] = field(default_factory=dict)  # lang -> {title, body}
+    fallback_lang: str = ""  # as for ArtObject
 
 
 @dataclass(frozen=True)
@@ -86,6 +93,20 @@ class Page:
     title: str
     body: str
     order: int = 100
+    translations: dict[str, dict] = field(default_factory=dict)  # lang -> {title, body}
+    fallback_lang: str = ""  # as for ArtObject
+    file: str = ""
+
+
+@dataclass(frozen=True)
+class Evidence:
+    """One row of the evidence ledger: where a coded cell was read from."""
+
+    state: str
+    source: str
+    note: str
+    file: str
+    line: int
 
 
 @dataclass(frozen=True)
@@ -110,6 +131,10 @@ class Atlas:
     basemap: dict | None
     warnings: tuple[Problem, ...] = ()
     withheld_text: tuple[str, ...] = ()  # what the profile withholds, for the leak audit
+    # The interface language of one rendering (set per language by atlas.site.languages).
+    i18n: Translator = field(default_factory=Translator, compare=False)
+    # The evidence ledger, by (object id, character id), for objects the profile shows.
+    evidence: dict[tuple[str, str], tuple[Evidence, ...]] = field(default_factory=dict)
 
     @property
     def taxa(self) -> tuple[str, ...]:

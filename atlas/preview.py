@@ -34,12 +34,13 @@ class _Quiet(SimpleHTTPRequestHandler):
 
 
 def serve(root: Path, out: Path, profile: str, port: int, *, once: bool = False,
-          say: Callable[[str], None] = print, poll: float = 1.0) -> None:
+          say: Callable[[str], None] = print, poll: float = 1.0, jobs: int = 1,
+          use_cache: bool = True) -> None:
     from .build import build
 
     def rebuild() -> None:
         try:
-            report = build(root, out, profile)
+            report = build(root, out, profile, jobs=jobs, use_cache=use_cache)
             say(f"Built {report.pages} pages.")
         except AtlasError as exc:
             for p in exc.problems:

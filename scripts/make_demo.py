@@ -37,6 +37,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
+import demo_french  # the French notes and place names (scripts/demo_french.py)
 import numpy as np
 
 SEED = 1
@@ -1136,13 +1137,14 @@ character twice.
 
 def atlas_toml() -> str:
     return f"""title = "Lamps of the Quorvane Isles (an invented demonstration atlas)"
-languages = ["en"]
+languages = ["en", "fr"]
 licence = "{LICENCE}"
 theme = "default"
 
 [sources]
 trees = "trees.nex"
 matrix = "matrix.csv"
+evidence = "evidence.csv"
 gazetteer = "places.csv"
 objects = "objects"
 characters = "characters"
@@ -1257,6 +1259,40 @@ def nexus(taxa: list[str], samples: list[tuple[int, str]]) -> str:
 
 
 # ---------------------------------------------------------------- 6. putting it together
+def evidence_rows(rows: dict[str, list[str]]) -> list[list[str]]:
+    """The evidence ledger: each coded cell with the (invented) record it was read from.
+
+    Form is read from the object's drawing (its image, so the ledger links to it), fabric from a
+    fresh break recorded on a survey card, decoration from the survey photographs.
+    """
+    group = {c[0]: c[1] for c in CHARACTERS}
+    parent_of = {child: parent for parent, children in DEPENDENTS.items() for child in children}
+    noted = set(noted_objects())
+    out = []
+    for n, (obj, cells) in enumerate(rows.items(), start=1):
+        card = f"Quorvane survey card QS-{100 + n} (invented)"
+        for char, cell in zip(CHAR_IDS, cells):
+            if cell == "?":
+                continue
+            kind = group[char]
+            if kind in ("Body", "Nozzle", "Handle") and obj in noted:
+                source = f"{obj}.svg"
+            elif kind == "Decoration":
+                source = f"Survey photograph QP-{100 + n}-{CHAR_IDS.index(char) + 1:02d} (invented)"
+            else:
+                source = card
+            note = ""
+            if cell == "-":
+                if obj in OUTGROUP:
+                    note = "carved stone: not applicable"
+                elif char in parent_of:
+                    note = f"not applicable: {parent_of[char]} is absent"
+            elif "/" in cell:
+                note = "both states seen on the one object"
+            out.append([obj, char, cell, source, note])
+    return out
+
+
 def noted_objects() -> list[str]:
     tips = sorted(t for lineage in LINEAGES.values() for t in lineage.members)
     return [t for t in tips if t not in NO_NOTE]
@@ -1268,6 +1304,7 @@ def planned_paths() -> list[str]:
         "atlas.toml",
         "basemap.geojson",
         "contacts.csv",
+        "evidence.csv",
         "matrix.csv",
         "places.csv",
         "rules.toml",
@@ -1282,6 +1319,7 @@ def planned_paths() -> list[str]:
         + [f"characters/{c}.md" for c in CHAR_IDS]
         + [f"media/character-{c}.svg" for c in IMAGE_CHARACTERS]
         + [f"clades/{name}.md" for name in CLADE_TEXT]
+        + list(demo_french.files())
     )
 
 
@@ -1301,8 +1339,10 @@ def make_files() -> dict[str, str]:
         "basemap.geojson": basemap(np.random.default_rng([SEED, 2])),
     }
     files["matrix.csv"] = csv_text(["object", *CHAR_IDS], [[o, *r] for o, r in rows.items()])
+    files["evidence.csv"] = csv_text(["object", "character", "state", "source", "note"],
+                                     evidence_rows(rows))
     files["places.csv"] = csv_text(
-        ["id", "name", "lat", "lon", "precision", "access"],
+        ["id", "name", "lat", "lon", "precision", "access", "name@fr"],
         [
             [
                 p,
@@ -1311,6 +1351,7 @@ def make_files() -> dict[str, str]:
                 f"{place_coordinates(p)[1]:.4f}",
                 "generalised" if p == GENERALISED else "exact",
                 "public",
+                demo_french.PLACE_NAMES[p],
             ]
             for p in sorted(PLACES)
         ],
@@ -1368,6 +1409,7 @@ def make_files() -> dict[str, str]:
             + clade_members(tree, LINEAGES["vesmouth"])[:1]
         ),
     )
+    files.update(demo_french.files())
     return files
 
 

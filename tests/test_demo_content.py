@@ -38,7 +38,14 @@ def front_matter(path: Path) -> tuple[dict, str]:
 
 
 def notes(folder: str) -> dict[str, tuple[dict, str]]:
-    return {p.stem: front_matter(p) for p in sorted((CONTENT / folder).glob("*.md"))}
+    """The notes of a folder, by name; translations (``<name>.<lang>.md``) left out."""
+    return {p.stem: front_matter(p) for p in sorted((CONTENT / folder).glob("*.md"))
+            if "." not in p.stem}
+
+
+def translations(folder: str, lang: str) -> dict[str, tuple[dict, str]]:
+    return {p.name[: -len(f".{lang}.md")]: front_matter(p)
+            for p in sorted((CONTENT / folder).glob(f"*.{lang}.md"))}
 
 
 def read_csv(name: str) -> list[dict[str, str]]:
@@ -72,7 +79,8 @@ def test_script_reproduces_content_byte_for_byte(tmp_path):
     )
     keep.unlink()
     made = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
-    committed = sorted(p.relative_to(CONTENT).as_posix() for p in CONTENT.rglob("*") if p.is_file())
+    committed = sorted(p.relative_to(CONTENT).as_posix() for p in CONTENT.rglob("*")
+                       if p.is_file() and ".atlas-cache" not in p.parts)  # the build cache
     assert made == committed
     for rel in made:
         assert (out / rel).read_bytes() == (CONTENT / rel).read_bytes(), rel
@@ -242,7 +250,7 @@ def test_rules_name_real_characters_and_states():
 
 
 def test_config_sources_and_profiles(config):
-    assert config["languages"] == ["en"]
+    assert config["languages"] == ["en", "fr"]  # English at the root, French under fr/
     for key in ("trees", "matrix", "gazetteer", "rules", "contacts"):
         assert (CONTENT / config["sources"][key]).is_file(), key
     for key in ("objects", "characters", "clades", "pages", "media"):
@@ -285,3 +293,22 @@ def test_about_page_says_invented_and_carries_the_cautions():
     for phrase in ("invented", "looting", "restricted by its community", "heritage law"):
         assert phrase in text, phrase
     assert "invented" in front_matter(CONTENT / "pages" / "acknowledgements.md")[1]
+
+
+def test_french_translations_stand_beside_their_notes(config):
+    # The demo ships a second interface language (invented content, translated by hand).
+    assert config["languages"] == ["en", "fr"]
+    places = read_csv("places.csv")
+    assert all(row["name@fr"].strip() for row in places)
+    assert any(row["name@fr"] != row["name"] for row in places)
+    for folder, at_least in (("objects", 3), ("clades", 1), ("pages", 1)):
+        french = translations(folder, "fr")
+        assert len(french) >= at_least, folder
+        originals = notes(folder)
+        for name, (meta, body) in french.items():
+            assert name in originals, (folder, name)  # a translation of an existing note
+            assert meta["title"] and meta["title"] != originals[name][0].get("title"), name
+            assert body and body != originals[name][1], name
+    # Some notes stay untranslated on purpose: the French pages show them marked lang="en".
+    assert len(translations("objects", "fr")) < len(notes("objects"))
+    assert "acknowledgements" not in translations("pages", "fr")

@@ -77,3 +77,11 @@ def test_python_api_reads_trees_and_summarises(tmp_path):
     assert all(first not in side for side in freqs)  # keyed by the side without it
     summary = atlas.summary_tree(sample, method="mcc")
     assert summary.n_trees == 750 and summary.method == "mcc"
+
+
+def test_python_api_build_is_the_function_even_after_load():
+    # Importing the pipeline submodule atlas/build.py must not hide the function atlas.build.
+    import atlas
+
+    atlas.load(EXAMPLES / "semitic-kitchen2009")
+    assert callable(atlas.build) and atlas.build.__module__ == "atlas"

@@ -17,6 +17,7 @@ from scipy.stats import pearsonr
 from atlas.analysis.geography import (
     EARTH_RADIUS_KM,
     clade_range,
+    convex_hull,
     distance_matrix,
     great_circle_km,
     lambert_azimuthal_equal_area,
@@ -314,6 +315,43 @@ def test_clade_range_area_against_scipy_convex_hull():
     x, y = laea(lon, lat)  # pyproj's projection, then SciPy's (Qhull) hull
     expected = ConvexHull(np.column_stack([x, y])).volume / 1e6  # a 2-d hull's volume is area
     assert r.area_km2 == pytest.approx(expected, rel=1e-9)
+
+
+def test_clade_range_hull_vertices_match_scipy_convex_hull():
+    # invented places; the reference is SciPy's Qhull on pyproj's projection of the same points
+    lat, lon = random_points(60, seed=35, lat=(-10, 25), lon=(100, 140))
+    r = clade_range(lat, lon)
+    laea = Proj(proj="laea", lat_0=r.centroid_lat, lon_0=r.centroid_lon, R=R * 1000)
+    x, y = laea(lon, lat)
+    qhull = ConvexHull(np.column_stack([x, y]))
+    expected = {(float(lat[i]), float(lon[i])) for i in qhull.vertices}
+    assert set(r.hull) == expected and len(r.hull) == len(qhull.vertices)
+    # SciPy gives 2-d hull vertices counter-clockwise; ours run the same way round
+    hx, hy = laea([p[1] for p in r.hull], [p[0] for p in r.hull])
+    signed = np.dot(hx, np.roll(hy, -1)) - np.dot(np.roll(hx, -1), hy)
+    assert signed > 0
+    start = list(qhull.vertices).index(int(np.flatnonzero((lat == r.hull[0][0])
+                                                         & (lon == r.hull[0][1]))[0]))
+    rolled = np.roll(qhull.vertices, -start)
+    assert [(float(lat[i]), float(lon[i])) for i in rolled] == list(r.hull)
+
+
+def test_convex_hull_against_scipy_on_random_planes():
+    rng = np.random.default_rng(37)  # invented point clouds
+    for n in (3, 4, 10, 200):
+        pts = rng.normal(size=(n, 2))
+        ours = convex_hull(pts[:, 0], pts[:, 1])
+        assert sorted(ours) == sorted(ConvexHull(pts).vertices.tolist())
+
+
+def test_clade_range_hull_of_one_and_two_places():
+    # closed forms: one distinct place has no outline, two give the segment between them
+    assert clade_range([5, 5], [10, 10]).hull == ()
+    assert clade_range([5], [10]).hull == ()
+    two = clade_range([5, 5, 7], [10, 10, 12])
+    assert sorted(two.hull) == [(5.0, 10.0), (7.0, 12.0)] and two.area_km2 == 0.0
+    # collinear places (the equator) give its two ends
+    assert sorted(clade_range([0, 0, 0, 0], [1, 2, 3, 4]).hull) == [(0.0, 1.0), (0.0, 4.0)]
 
 
 def test_clade_range_degenerate_cases():

@@ -17,7 +17,15 @@ import pytest
 from pyproj import Proj
 
 from atlas.errors import AtlasError
-from atlas.site.mapsvg import WORLD, equal_earth, land_paths, map_svg
+from atlas.site.mapsvg import (
+    WORLD,
+    basemap_svg,
+    equal_earth,
+    land_paths,
+    map_svg,
+    map_window,
+    overlay_svg,
+)
 
 BASEMAP = Path(__file__).resolve().parent.parent / "atlas" / "basemaps" / "world_110m.json"
 SVG = "{http://www.w3.org/2000/svg}"
@@ -270,6 +278,50 @@ def test_map_svg_extra_polygons_and_determinism(land):
     assert first == map_svg(list(reversed(PLACES)), rings=land, extra_polygons=region)
     path = parse(first).find(f"{SVG}path[@class='region']")
     assert path is not None and len(path_points(path.get("d"))[0]) >= 4
+
+
+def test_layers_share_one_window_and_overlays_hold_only_points(land):
+    view = map_window(PLACES, width=480)
+    base = parse(basemap_svg(view, rings=land, title="Study area (invented)"))
+    top = overlay_svg(view, PLACES[:2], title="State 1 (invented)", fill="#009E73")
+    over = parse(top)
+    # the same size and viewBox, so one image stacks exactly on the other
+    for attr in ("viewBox", "width", "height"):
+        assert base.get(attr) == over.get(attr)
+    assert base.findall(f".//{SVG}path[@class='land']") and not base.findall(f".//{SVG}circle")
+    assert not over.findall(f".//{SVG}path[@class='land']")
+    assert not over.findall(f".//{SVG}a") and "<title>" not in top.split("</title>", 1)[1]
+    circles = over.findall(f".//{SVG}circle")
+    assert len(circles) == 2
+    # the points sit where map_svg puts them on the same window (the same projection)
+    full = parse(map_svg(PLACES, rings=land, width=480))
+    centres = {(c.get("cx"), c.get("cy")) for c in full.findall(f".//{SVG}circle")}
+    assert {(c.get("cx"), c.get("cy")) for c in circles} <= centres
+    # the state's colour on the groups: filled points, and the generalised place as a ring
+    solid = over.find(f"{SVG}g[@class='points']")
+    ring = over.find(f"{SVG}g[@class='points generalised']")
+    assert solid.get("fill") == "#009E73" and ring.get("stroke") == "#009E73"
+    assert len(solid) == 1 and len(ring) == 1  # Vell exact, Orro generalised (PLACES)
+    counts = [t.text for t in over.findall(f".//{SVG}text")]
+    assert counts == ["3"]  # only the place with more than one object shows its count
+
+
+def test_range_outline_polygon_line_and_nothing(land):
+    # the invented places' own coordinates as outline vertices: the outline passes through
+    # the circles' centres (same projection, same rounding)
+    hull = [(p["lat"], p["lon"]) for p in PLACES]
+    root = parse(map_svg(PLACES, rings=land, outline=hull))
+    path = root.find(f".//{SVG}path[@class='range-outline']")
+    assert path is not None and path.get("d").endswith("Z")
+    vertices = {tuple(v.split(",")) for v in path.get("d")[1:-1].split()}
+    centres = {(c.get("cx"), c.get("cy")) for c in root.findall(f".//{SVG}circle")}
+    assert vertices == centres
+    line = parse(map_svg(PLACES, rings=land, outline=hull[:2]))
+    d = line.find(f".//{SVG}path[@class='range-outline']").get("d")
+    assert not d.endswith("Z") and len(d[1:].split()) == 2
+    assert line.find(f".//{SVG}path[@class='range-outline']").get("fill") == "none"
+    single = parse(map_svg(PLACES, rings=land, outline=hull[:1]))
+    assert single.find(f".//{SVG}path[@class='range-outline']") is None
 
 
 def test_docstring_examples():

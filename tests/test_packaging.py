@@ -21,4 +21,9 @@ def test_wheel_carries_themes_and_basemaps(tmp_path):
             inside = "atlas/themes/" + theme_file.relative_to(REPO / "themes").as_posix()
             assert inside in names, inside
     assert "atlas/basemaps/world_110m.json" in names
+    # The interface catalogues: the template and every language's .po (read at run time).
+    assert "atlas/locale/atlas.pot" in names
+    for po in (REPO / "atlas" / "locale").glob("*/LC_MESSAGES/atlas.po"):
+        assert "atlas/" + po.relative_to(REPO / "atlas").as_posix() in names, po
+    assert "atlas/locale/fr/LC_MESSAGES/atlas.po" in names
     assert any(n.endswith("entry_points.txt") for n in names)

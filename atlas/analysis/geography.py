@@ -9,7 +9,8 @@ ellipsoid a spherical distance is off by at most about 0.5 %.
 - :func:`great_circle_km`, :func:`distance_matrix`: haversine distances;
 - :func:`patristic_distances`: path lengths between the tips of a tree;
 - :func:`mantel`: does distance on the tree follow distance on the ground?
-- :func:`clade_range`: centre, spread and area of a set of places;
+- :func:`clade_range`: centre, spread, area and outline of a set of places;
+- :func:`convex_hull`: the outline itself (Andrew's monotone chain) on projected points;
 - :func:`lambert_azimuthal_equal_area`: the projection behind the area.
 
 Objects without coordinates are ``nan`` throughout: their distances are ``nan``, the Mantel
@@ -297,17 +298,20 @@ def lambert_azimuthal_equal_area(lat, lon, lat0: float, lon0: float,
 @dataclass(frozen=True)
 class Range:
     """Where a set of places lies: spherical mean (degrees), mean distance to it (km), area of
-    the convex hull (km^2), and the number of places with coordinates."""
+    the convex hull (km^2), the number of places with coordinates, and the hull's vertices as
+    ``(lat, lon)`` pairs in counter-clockwise order on the equal-area projection (one distinct
+    place: no vertex, two: the two ends of a line, three or more: the polygon, not closed)."""
 
     centroid_lat: float
     centroid_lon: float
     spread_km: float
     area_km2: float
     n: int
+    hull: tuple[tuple[float, float], ...] = ()
 
 
 def clade_range(lats, lons) -> Range:
-    """The range of a clade's places: centre, spread and area.
+    """The range of a clade's places: centre, spread, area and outline.
 
     - centre: the spherical mean, the normalised mean of the unit vectors
       ``(cos phi cos lambda, cos phi sin lambda, sin phi)`` (Fisher, Lewis & Embleton 1987,
@@ -320,7 +324,13 @@ def clade_range(lats, lons) -> Range:
       monotone chain, Andrew 1979, Information Processing Letters 9:216-219). The hull's edges
       are straight on the projection, so for a range across a continent it is a good
       approximation, not a spherical polygon. Fewer than 3 distinct places, or places on one
-      line, give 0.
+      line, give 0;
+    - outline: the same hull's vertices (:func:`convex_hull`), given back as the ``(lat, lon)``
+      of the places they are, so no coordinate is made up or moved. The convex hull of the
+      occurrences is the "extent of occurrence" of a range (IUCN 2012, *IUCN Red List
+      Categories and Criteria* 3.1, 2nd ed., criterion B1; Gaston & Fuller 2009, Journal of
+      Applied Ecology 46:1-9, who discuss what the hull does and does not measure). A single
+      distinct place gives no outline, two give a line.
 
     Places with ``nan`` coordinates are left out; ``n`` counts the others.
 
@@ -330,6 +340,8 @@ def clade_range(lats, lons) -> Range:
     >>> r = clade_range([0, 0], [-1, 1])
     >>> r.centroid_lat, r.centroid_lon, round(r.spread_km, 3), r.area_km2, r.n
     (0.0, 0.0, 111.195, 0.0, 2)
+    >>> r.hull
+    ((0.0, -1.0), (0.0, 1.0))
     """
     lat = np.asarray(lats, dtype=np.float64).ravel()
     lon = np.asarray(lons, dtype=np.float64).ravel()
@@ -352,7 +364,11 @@ def clade_range(lats, lons) -> Range:
     c_lat, c_lon = _clean(c_lat), _clean(c_lon)
     spread = float(great_circle_km(lat, lon, c_lat, c_lon).mean())
     x, y = lambert_azimuthal_equal_area(lat, lon, c_lat, c_lon)
-    return Range(c_lat, c_lon, spread, _hull_area(x, y), n)
+    order = convex_hull(x, y)
+    if len(order) < 2:  # one distinct place: no outline
+        order = []
+    hull = tuple((float(lat[i]), float(lon[i])) for i in order)
+    return Range(c_lat, c_lon, spread, _polygon_area(x[order], y[order]), n, hull)
 
 
 def _clean(value: float) -> float:
@@ -361,10 +377,30 @@ def _clean(value: float) -> float:
     return 0.0 if value == 0 else value
 
 
-def _hull_area(x: np.ndarray, y: np.ndarray) -> float:
-    points = sorted(set(zip(np.round(x, 9).tolist(), np.round(y, 9).tolist(), strict=True)))
+def convex_hull(x, y) -> list[int]:
+    """Indices of the points on the convex hull, counter-clockwise, starting from the lowest
+    ``x`` (then lowest ``y``); collinear points on an edge are left out.
+
+    Andrew's monotone chain (Andrew 1979, Information Processing Letters 9:216-219): sort the
+    points by ``(x, y)``, build the lower chain left to right and the upper chain right to
+    left, popping the last point while it does not make a left turn, i.e. while the cross
+    product ``(p - o) x (q - o) = (p_x - o_x)(q_y - o_y) - (p_y - o_y)(q_x - o_x) <= 0``.
+    ``O(n log n)``. Points equal after rounding to 1e-9 count once (the first index kept);
+    one distinct point gives ``[i]``, all points on one line give its two ends.
+
+    By hand, the unit square with its centre: the centre is inside, the corners are the hull.
+
+    >>> convex_hull([0, 1, 1, 0, 0.5], [0, 0, 1, 1, 0.5])
+    [0, 1, 2, 3]
+    """
+    xs = np.round(np.asarray(x, dtype=np.float64).ravel(), 9).tolist()
+    ys = np.round(np.asarray(y, dtype=np.float64).ravel(), 9).tolist()
+    first: dict[tuple[float, float], int] = {}
+    for i, p in enumerate(zip(xs, ys, strict=True)):
+        first.setdefault(p, i)
+    points = sorted(first)
     if len(points) < 3:
-        return 0.0
+        return [first[p] for p in points]
 
     def cross(o: tuple[float, float], p: tuple[float, float], q: tuple[float, float]) -> float:
         return (p[0] - o[0]) * (q[1] - o[1]) - (p[1] - o[1]) * (q[0] - o[0])
@@ -378,8 +414,13 @@ def _hull_area(x: np.ndarray, y: np.ndarray) -> float:
         return chain[:-1]
 
     hull = half(points) + half(points[::-1])
-    if len(hull) < 3:
+    if len(hull) < 3:  # all on one line: its two ends
+        hull = [points[0], points[-1]]
+    return [first[p] for p in hull]
+
+
+def _polygon_area(hx: np.ndarray, hy: np.ndarray) -> float:
+    """The shoelace formula; fewer than 3 vertices have no area."""
+    if len(hx) < 3:
         return 0.0
-    hx = np.array([p[0] for p in hull])
-    hy = np.array([p[1] for p in hull])
     return float(abs(np.dot(hx, np.roll(hy, -1)) - np.dot(np.roll(hx, -1), hy)) / 2)

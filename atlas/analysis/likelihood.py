@@ -47,7 +47,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special, stats
 
-from atlas.analysis.tree import Tree, clade_masks
+from atlas.analysis.tree import Tree
 from atlas.errors import AtlasError, Problem, Problems, did_you_mean
 
 MODELS = ("mk", "mk-gain-loss")
@@ -692,6 +692,7 @@ def reconstruct_over_sample(
     masks: np.ndarray,
     n_states: np.ndarray,
     fit: MkFit,
+    jobs: int = 1,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Marginal states at each summary clade, averaged over the sampled trees that contain it.
 
@@ -700,27 +701,13 @@ def reconstruct_over_sample(
     tree (Pagel, Meade & Barker 2004, Syst. Biol. 53:673-684, average reconstructions over a
     posterior sample at the clades it shares). ``counts[i]`` is the number of such trees; where it
     is 0, ``probs[i]`` is ``nan``. Shapes ``(n_clades, n_chars, max_k)`` and ``(n_clades,)``.
+    The work runs in :mod:`atlas.analysis.sampling` (``jobs`` processes; the same result for any
+    number).
     """
-    n_states = np.asarray(n_states)
-    index = {int(c): i for i, c in enumerate(summary_clades)}
+    from .sampling import sample_states
+
     problems = Problems()
     if trees and any(t.taxa != trees[0].taxa for t in trees):
         problems.error("trees", None, "the sampled trees do not share one set of taxa")
     problems.raise_if_any()
-    sums = np.zeros((len(summary_clades), n_states.size, int(n_states.max())))
-    counts = np.zeros(len(summary_clades), dtype=np.int64)
-    for tree in trees:
-        clades = clade_masks(tree)
-        hits = [(index[c], v) for v, c in enumerate(clades) if c in index]
-        if not hits:
-            continue
-        rows = np.array([h[0] for h in hits])
-        nodes = np.array([h[1] for h in hits])
-        for gp in conditional_passes(tree, masks, n_states, fit):
-            post = _posterior(gp.above[nodes], gp.down[nodes], gp.cat_post)
-            sums[rows[:, None], gp.cols[None, :], : gp.k] += post  # a clade occurs once per tree
-        counts[rows] += 1
-    with np.errstate(invalid="ignore", divide="ignore"):
-        probs = sums / counts[:, None, None]
-    probs[counts == 0] = np.nan
-    return probs, counts
+    return sample_states(trees, summary_clades, masks, n_states, fit, jobs=jobs)

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..cache import Cache, analysis_key
 from ..model import Atlas
 from .changes import Changes, expected_changes
 from .consensus import Summary, clade_support, majority_rule, mcc_tree, node_ids, reroot
@@ -65,8 +66,24 @@ def summary_tree(atlas: Atlas) -> Summary:
     return majority_rule(sample, outgroup=outgroup)
 
 
-def analyse(atlas: Atlas) -> Results:
-    """Summary tree, support, parsimony, likelihood reconstruction and expected changes."""
+def analyse(atlas: Atlas, jobs: int = 1, cache: Cache | None = None) -> Results:
+    """Summary tree, support, parsimony, likelihood reconstruction and expected changes.
+
+    ``jobs`` processes share the reconstruction over the sample trees (the result is the same
+    for any number). With a ``cache``, results computed before from the same inputs
+    (:func:`atlas.cache.analysis_key`) are read from it instead.
+    """
+    cache = cache or Cache()
+    key = analysis_key(atlas) if cache.enabled else ""
+    cached = cache.get("analysis", key) if cache.enabled else None
+    if isinstance(cached, Results):
+        return cached
+    results = _analyse(atlas, jobs)
+    cache.put("analysis", key, results)
+    return results
+
+
+def _analyse(atlas: Atlas, jobs: int) -> Results:
     analysis = atlas.config.analysis
     summary = summary_tree(atlas)
     tree = summary.tree
@@ -95,7 +112,8 @@ def analyse(atlas: Atlas) -> Results:
             # the analysis, 27 of 29 s CPU on the 1,000-tree Semitic example).
             averaged, counts = reconstruct_over_sample(
                 thinned(atlas.sample.trees, analysis["ancestral_trees"]),
-                [masks_by_node[v] for v in internal], atlas.masks, atlas.n_states, fit)
+                [masks_by_node[v] for v in internal], atlas.masks, atlas.n_states, fit,
+                jobs=jobs)
             for row, v in enumerate(internal):
                 if counts[row] > 0:
                     probs[v] = averaged[row]

@@ -39,6 +39,7 @@ import numpy as np
 from ..analysis.results import Results
 from ..analysis.tree import Tree
 from ..errors import AtlasError, Problem
+from ..i18n import N_
 from ..model import Atlas
 from ..sources.trees import quote_label, write_newick
 from .search import normalise
@@ -437,20 +438,45 @@ def unlink_external(html: str) -> str:
 
 # --- the page ------------------------------------------------------------------------------
 
+def evidence_csv(atlas: Atlas, labels: Mapping[str, str]) -> str:
+    """The evidence ledger of the published objects: ``object,character,state,source,note``."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(["object", "character", "state", "source", "note"])
+    order = {c.id: j for j, c in enumerate(atlas.characters)}
+    for (oid, cid), entries in sorted(atlas.evidence.items(),
+                                      key=lambda kv: (_label_order(labels[kv[0][0]]),
+                                                      order.get(kv[0][1], 0))):
+        for e in entries:
+            writer.writerow([labels[oid], cid, e.state, e.source, e.note])
+    return buffer.getvalue()
+
+
+# Marked with N_ for the catalogue; translated where the page is planned.
 _DESCRIPTIONS = {
-    "CITATION.cff": ("Citation (CFF 1.2.0)", ("How to cite the atlas, for reference managers "
-                     "and code hosts.")),
-    "atlas.bib": ("Citation (BibTeX)", "One @misc entry."),
-    "matrix.csv": ("Trait matrix (CSV)", ("One row per object, one column per character, as "
-                   "coded: ? unknown, - not applicable, 0/1 polymorphic.")),
-    "trees.nex": ("Sampled trees (NEXUS)", "The trees kept after burn-in, with a TAXA block."),
-    "trees.nwk": ("Sampled trees (Newick)", "The same trees, one per line."),
-    "summary.nwk": ("Summary tree (Newick)", ("The tree the site is drawn on; internal labels "
-                    "are clade posterior probabilities.")),
-    "places.geojson": ("Places (GeoJSON)", ("Published places; generalised places at their "
-                       "generalised coordinates, withheld places left out.")),
-    "stats.json": ("Study numbers (JSON)", ("Clade support, parsimony indices, the fitted model "
-                   "and the reconstructed states at every node.")),
+    "CITATION.cff": (N_("Citation (CFF 1.2.0)"),
+        N_("How to cite the atlas, for reference managers and code hosts.")),
+    "atlas.bib": (N_("Citation (BibTeX)"),
+        N_("One @misc entry.")),
+    "matrix.csv": (N_("Trait matrix (CSV)"),
+        N_("One row per object, one column per character, as coded: ? unknown, - not "
+           "applicable, 0/1 polymorphic.")),
+    "evidence.csv": (N_("Evidence ledger (CSV)"),
+        N_("One row per coded cell of a published object: its state, the source it was read "
+           "from and a note.")),
+    "trees.nex": (N_("Sampled trees (NEXUS)"),
+        N_("The trees kept after burn-in, with a TAXA block.")),
+    "trees.nwk": (N_("Sampled trees (Newick)"),
+        N_("The same trees, one per line.")),
+    "summary.nwk": (N_("Summary tree (Newick)"),
+        N_("The tree the site is drawn on; internal labels are clade posterior "
+           "probabilities.")),
+    "places.geojson": (N_("Places (GeoJSON)"),
+        N_("Published places; generalised places at their generalised coordinates, withheld "
+           "places left out.")),
+    "stats.json": (N_("Study numbers (JSON)"),
+        N_("Clade support, parsimony indices, the fitted model and the reconstructed states "
+           "at every node.")),
 }
 
 
@@ -474,6 +500,7 @@ def downloads_plan(atlas: Atlas, results: Results, links: Links, stats: dict, *,
         "CITATION.cff": citation_cff(config.title, config.authors, config.licence, **cite),
         "atlas.bib": citation_bibtex(config.title, config.authors, config.licence, **cite),
         "matrix.csv": matrix_csv(atlas, labels),
+        **({"evidence.csv": evidence_csv(atlas, labels)} if atlas.evidence else {}),
         "trees.nex": trees_nexus(atlas, labels),
         "trees.nwk": trees_newick(atlas, labels),
         "summary.nwk": summary_newick(atlas, results, labels),
@@ -481,14 +508,15 @@ def downloads_plan(atlas: Atlas, results: Results, links: Links, stats: dict, *,
         "stats.json": stats_json(stats, labels),
     }
     root = root_of(PAGE)
-    files = [{"href": name, "label": _DESCRIPTIONS[name][0], "about": _DESCRIPTIONS[name][1],
+    _ = atlas.i18n.gettext
+    files = [{"href": name, "label": _(_DESCRIPTIONS[name][0]), "about": _(_DESCRIPTIONS[name][1]),
               "size": _size(len(text.encode("utf-8")))} for name, text in texts.items()]
     n_withheld = sum(1 for o in atlas.objects.values() if o.withheld)
     page = PagePlan(PAGE, "downloads.html", {
-        "kind": "downloads", "title": "Downloads and citation",
+        "kind": "downloads", "title": _("Downloads and citation"),
         "citation": citation_text(config.title, config.authors, **cite),
         "bibtex": texts["atlas.bib"], "has_authors": bool(config.authors),
         "files": files, "withheld": n_withheld, "licence": config.licence,
-        "breadcrumbs": [("Methods", root + "methods.html")],
+        "breadcrumbs": [(_("Methods"), root + "methods.html")],
     })
     return page, {f"{FOLDER}/{name}": text for name, text in texts.items()}

@@ -327,30 +327,10 @@ def _place_points(points: Iterable[Mapping]) -> list[dict]:
     return out
 
 
-def map_svg(points: Iterable[Mapping], *, rings: Iterable, bounds: Sequence[float] | None = None,
-            width: int = 720, title: str = "Distribution map",
-            extra_polygons: Iterable = (), svg_id: str = "map-svg") -> str:
-    """A static, self-contained SVG map of places.
-
-    ``points`` are mappings ``{"lat", "lon", "label", "href", "count", "precision"}``: each
-    becomes a circle whose area grows with ``count`` (radius ``4.5 sqrt(count)`` px, at most
-    24), the count written inside when above 1, wrapped in ``<a href>`` (relative links only:
-    a link with a scheme, such as ``http:``, is dropped) with the label as its ``<title>``.
-    A ``generalised`` place is a hollow ring; a ``withheld`` place, or one without
-    coordinates, is not drawn. ``rings`` are the land outlines from :func:`land_paths`;
-    ``extra_polygons`` are further rings of (lon, lat), e.g. a regional basemap from GeoJSON.
-
-    The window is ``bounds`` (west, south, east, north) in degrees, ``west > east`` for a box
-    across the 180th meridian, or else the points' extent with a 15 % margin (the world when
-    no point can be drawn), on the Equal Earth projection (:func:`equal_earth`) centred on the
-    window's middle meridian, so places either side of the 180th meridian stay together;
-    outlines are cut where they cross the map's edge meridian. Outlines are clipped to the
-    window (Sutherland-Hodgman), thinned (a point closer than 0.5 px to the last one kept is
-    skipped) and rounded to 0.1 px.
-    Colours are ``currentColor`` with opacities, and elements carry classes (``map-svg``,
-    ``sphere``/``frame``, ``land``, ``region``, ``point``, ``point generalised``, ``count``),
-    so a style sheet can theme the map.
-    """
+def map_window(points: Iterable[Mapping] = (), *, bounds: Sequence[float] | None = None,
+               width: int = 720) -> _View:
+    """The window :func:`map_svg` would draw for these points and bounds (see there), so that
+    several layers (a shared basemap, then points) can be drawn on exactly the same one."""
     places = _place_points(points)
     width = max(int(width), 60)
     if bounds is not None:
@@ -361,12 +341,20 @@ def map_svg(points: Iterable[Mapping], *, rings: Iterable, bounds: Sequence[floa
         extent = _fitted_extent(np.asarray(x), np.asarray(y))
     else:
         lon0, extent = _bounds_window(WORLD)
-    view = _View(lon0, extent, width)
+    return _View(lon0, extent, width)
+
+
+def _head(view: _View, title: str, svg_id: str) -> list[str]:
     sid = _text(svg_id)
-    head = (f'<svg xmlns="http://www.w3.org/2000/svg" class="map-svg" '
+    return [f'<svg xmlns="http://www.w3.org/2000/svg" class="map-svg" '
             f'viewBox="0 0 {view.width} {view.height}" width="{view.width}" '
-            f'height="{view.height}" role="img" aria-labelledby="{sid}-title">')
-    parts = [head, f'<title id="{sid}-title">{_text(title)}</title>']
+            f'height="{view.height}" role="img" aria-labelledby="{sid}-title">',
+            f'<title id="{sid}-title">{_text(title)}</title>']
+
+
+def _base_parts(view: _View, rings: Iterable, extra_polygons: Iterable) -> list[str]:
+    """The sphere's edge (or the window's frame), the land and the regional basemap."""
+    parts = []
     outline = 'fill="none" stroke="currentColor" stroke-opacity="0.45" stroke-width="0.8"'
     if view.world:
         lat = np.linspace(-90.0, 90.0, 91)
@@ -387,31 +375,160 @@ def map_svg(points: Iterable[Mapping], *, rings: Iterable, bounds: Sequence[floa
         parts.append('<path class="region" fill="currentColor" fill-opacity="0.1" '
                      'fill-rule="evenodd" stroke="currentColor" stroke-opacity="0.7" '
                      f'stroke-width="1" stroke-dasharray="4 2" d="{region}"/>')
+    return parts
+
+
+def _outline_part(view: _View, outline: Sequence[Sequence[float]]) -> str:
+    """A range outline: ``(lat, lon)`` vertices, closed when there are 3 or more, a line for
+    2, nothing for fewer. Edges are drawn straight on the map."""
+    if len(outline) < 2:
+        return ""
+    lat = np.asarray([float(p[0]) for p in outline])
+    lon = _wrap(np.asarray([float(p[1]) for p in outline]) - view.lon0)
+    px, py = view.pixels(lat, lon)
+    d = "M" + " ".join(f"{_num(x)},{_num(y)}" for x, y in zip(px.tolist(), py.tolist(),
+                                                               strict=True))
+    closed = len(outline) >= 3
+    fill = 'fill="currentColor" fill-opacity="0.06"' if closed else 'fill="none"'
+    return (f'<path class="range-outline" {fill} stroke="currentColor" stroke-width="1.5" '
+            f'stroke-dasharray="6 3" stroke-linejoin="round" d="{d}{"Z" if closed else ""}"/>')
+
+
+def _marks(view: _View, places: list[dict]) -> list[tuple[str, str, dict]]:
+    """``(circle, count, place)`` per drawable place: a circle whose area grows with the count
+    (``currentColor``), the count (a ``<text>``, or ``""`` for one object) to write inside."""
     marks = []
-    for p in places:
-        px, py = view.pixels(p["lat"], _wrap(p["lon"] - view.lon0))
-        px, py = float(px), float(py)
-        r = min(POINT_RADIUS_PX * math.sqrt(p["count"]), MAX_RADIUS_PX)
-        if px < -r or py < -r or px > view.width + r or py > view.height + r:
+    for p, (at, x, y) in zip(places, _spots(view, places), strict=True):
+        if not at:
             continue
         if p["generalised"]:
-            circle = (f'<circle class="point generalised" cx="{_num(px)}" cy="{_num(py)}" '
-                      f'r="{_num(r)}" fill="none" stroke="currentColor" stroke-width="1.5"/>')
+            circle = (f'<circle class="point generalised" {at} fill="none" '
+                      'stroke="currentColor" stroke-width="1.5"/>')
         else:
-            circle = (f'<circle class="point" cx="{_num(px)}" cy="{_num(py)}" r="{_num(r)}" '
-                      'fill="currentColor" fill-opacity="0.35" stroke="currentColor" '
-                      'stroke-width="1.5"/>')
+            circle = (f'<circle class="point" {at} fill="currentColor" fill-opacity="0.35" '
+                      'stroke="currentColor" stroke-width="1.5"/>')
         count = ""
         if p["count"] > 1:
-            count = (f'<text class="count" x="{_num(px)}" y="{_num(py + 3.5)}" font-size="10" '
-                     f'text-anchor="middle" fill="currentColor">{p["count"]}</text>')
+            count = f'<text class="count" x="{x}" y="{y}">{p["count"]}</text>'
+        marks.append((circle, count, p))
+    return marks
+
+
+def _spots(view: _View, places: list[dict]) -> list[tuple[str, str, str]]:
+    """Per place, its circle's ``cx cy r`` attributes and where its count goes (``("", "",
+    "")`` when it falls outside the window), projected all at once (one numpy call)."""
+    xs, ys = view.pixels(np.asarray([p["lat"] for p in places], dtype=np.float64),
+                         _wrap(np.asarray([p["lon"] for p in places], dtype=np.float64)
+                               - view.lon0))
+    out = []
+    for p, px, py in zip(places, np.atleast_1d(xs).tolist(), np.atleast_1d(ys).tolist(),
+                         strict=True):
+        r = min(POINT_RADIUS_PX * math.sqrt(p["count"]), MAX_RADIUS_PX)
+        if px < -r or py < -r or px > view.width + r or py > view.height + r:
+            out.append(("", "", ""))
+        else:
+            out.append((f'cx="{_num(px)}" cy="{_num(py)}" r="{_num(r)}"', _num(px),
+                        _num(py + 3.5)))
+    return out
+
+
+def _linked(marks: list[tuple[str, str, dict]]) -> list[str]:
+    out = []
+    for circle, count, p in marks:
         mark = f'<title>{_text(p["label"])}</title>{circle}{count}'
         href = p["href"]
         if href and not _SCHEME.match(href):
-            marks.append(f'<a href="{_text(href)}">{mark}</a>')
+            out.append(f'<a href="{_text(href)}">{mark}</a>')
         else:
-            marks.append(f"<g>{mark}</g>")
+            out.append(f"<g>{mark}</g>")
+    return out
+
+
+_TEXT_ATTRS = 'font-family="sans-serif" font-size="10" text-anchor="middle"'
+
+
+def map_svg(points: Iterable[Mapping], *, rings: Iterable, bounds: Sequence[float] | None = None,
+            width: int = 720, title: str = "Distribution map",
+            extra_polygons: Iterable = (), svg_id: str = "map-svg",
+            outline: Sequence[Sequence[float]] = ()) -> str:
+    """A static, self-contained SVG map of places.
+
+    ``points`` are mappings ``{"lat", "lon", "label", "href", "count", "precision"}``: each
+    becomes a circle whose area grows with ``count`` (radius ``4.5 sqrt(count)`` px, at most
+    24), the count written inside when above 1, wrapped in ``<a href>`` (relative links only:
+    a link with a scheme, such as ``http:``, is dropped) with the label as its ``<title>``.
+    A ``generalised`` place is a hollow ring; a ``withheld`` place, or one without
+    coordinates, is not drawn. ``rings`` are the land outlines from :func:`land_paths`;
+    ``extra_polygons`` are further rings of (lon, lat), e.g. a regional basemap from GeoJSON;
+    ``outline`` is a range outline as ``(lat, lon)`` vertices (a dashed polygon, or a line for
+    two vertices), e.g. ``Range.hull`` from :func:`atlas.analysis.geography.clade_range`.
+
+    The window is ``bounds`` (west, south, east, north) in degrees, ``west > east`` for a box
+    across the 180th meridian, or else the points' extent with a 15 % margin (the world when
+    no point can be drawn), on the Equal Earth projection (:func:`equal_earth`) centred on the
+    window's middle meridian, so places either side of the 180th meridian stay together;
+    outlines are cut where they cross the map's edge meridian. Outlines are clipped to the
+    window (Sutherland-Hodgman), thinned (a point closer than 0.5 px to the last one kept is
+    skipped) and rounded to 0.1 px.
+    Colours are ``currentColor`` with opacities, and elements carry classes (``map-svg``,
+    ``sphere``/``frame``, ``land``, ``region``, ``range-outline``, ``point``,
+    ``point generalised``, ``count``), so a style sheet can theme the map.
+    """
+    view = map_window(points, bounds=bounds, width=width)
+    parts = _head(view, title, svg_id) + _base_parts(view, rings, extra_polygons)
+    line = _outline_part(view, outline)
+    if line:
+        parts.append(line)
+    marks = _linked(_marks(view, _place_points(points)))
     if marks:
-        parts.append('<g class="points" font-family="sans-serif">' + "".join(marks) + "</g>")
+        parts.append(f'<g class="points" {_TEXT_ATTRS} fill="currentColor">'
+                     + "".join(marks) + "</g>")
+    parts.append("</svg>")
+    return "".join(parts)
+
+
+def basemap_svg(view: _View, *, rings: Iterable, extra_polygons: Iterable = (),
+                title: str = "Basemap", svg_id: str = "basemap") -> str:
+    """The bottom layer of a layered map: frame, land and regional basemap of ``view`` (from
+    :func:`map_window`), no points. Drawn once and shared by many :func:`overlay_svg` layers,
+    which an HTML page stacks over it with CSS, so each overlay stays a few kilobytes."""
+    parts = _head(view, title, svg_id) + _base_parts(view, rings, extra_polygons)
+    parts.append("</svg>")
+    return "".join(parts)
+
+
+def overlay_svg(view: _View, points: Iterable[Mapping], *, title: str, svg_id: str = "overlay",
+                fill: str | None = None, outline: Sequence[Sequence[float]] = ()) -> str:
+    """The top layer of a layered map: the points (as in :func:`map_svg`, without links or
+    tooltips, which an image cannot use) and an optional range outline on a transparent
+    background, on the same ``view`` and size as its :func:`basemap_svg`. ``fill`` gives every
+    point one colour (a state's colour), else ``currentColor``; points have a dark edge, and a
+    generalised place is a thick ring (group ``points generalised``)."""
+    parts = _head(view, title, svg_id)
+    line = _outline_part(view, outline)
+    if line:
+        parts.append(line)
+    places = _place_points(points)
+    spots = _spots(view, places)
+    solid = "".join(f"<circle {at}/>" for p, (at, _, _) in zip(places, spots, strict=True)
+                    if at and not p["generalised"])
+    rings = "".join(f"<circle {at}/>" for p, (at, _, _) in zip(places, spots, strict=True)
+                    if at and p["generalised"])
+    counts = "".join(f'<text x="{x}" y="{y}">{p["count"]}</text>'
+                     for p, (at, x, y) in zip(places, spots, strict=True)
+                     if at and p["count"] > 1)
+    colour = fill or "currentColor"
+    # Shared attributes on groups keep each point to about 40 bytes: filled circles with a
+    # dark edge, generalised places as thick rings, then the counts in black on a white halo,
+    # legible on any state colour.
+    if solid:
+        parts.append(f'<g class="points" fill="{colour}" stroke="#1c1f23" stroke-width="1">'
+                     f"{solid}</g>")
+    if rings:
+        parts.append(f'<g class="points generalised" fill="none" stroke="{colour}" '
+                     f'stroke-width="3">{rings}</g>')
+    if counts:
+        parts.append(f'<g class="counts" {_TEXT_ATTRS} fill="#000000" stroke="#ffffff" '
+                     f'stroke-width="2.5" paint-order="stroke">{counts}</g>')
     parts.append("</svg>")
     return "".join(parts)

@@ -5,6 +5,7 @@ free pages. Like :mod:`atlas.site.views`, plain functions returning plain data.
 from __future__ import annotations
 
 from collections import defaultdict
+from collections.abc import Callable
 
 import numpy as np
 
@@ -31,6 +32,7 @@ MAP_SCRIPTS = (*PLOT_SCRIPTS, "data/world.js", "data/basemap.js", "data/places.j
 
 def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> PagePlan:
     config = atlas.config
+    ngettext = atlas.i18n.ngettext
     visible = atlas.visible_objects()
     lineages = []
     for v, notes in sorted(notes_by_node.items()):
@@ -38,18 +40,19 @@ def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> Pa
             lineages.append({"title": note.title, "href": links.nodes.get(results.ids[v], ""),
                              "summary": plain_text(note.body, 160),
                              "support": fmt(results.summary.support[v]),
-                             "count": len(results.members[v])})
+                             "count": len(results.members[v]), "lang": note.fallback_lang})
     counts = [
-        (str(len(atlas.objects)), "objects"),
-        (str(len(atlas.characters)), "characters"),
-        (str(len(atlas.places)), "places"),
-        (str(results.summary.n_trees), "sampled trees"),
+        (str(len(atlas.objects)), ngettext("object", "objects", len(atlas.objects))),
+        (str(len(atlas.characters)), ngettext("character", "characters", len(atlas.characters))),
+        (str(len(atlas.places)), ngettext("place", "places", len(atlas.places))),
+        (str(results.summary.n_trees),
+         ngettext("sampled tree", "sampled trees", results.summary.n_trees)),
     ]
     return PagePlan("index.html", "index.html", {
         "kind": "home", "title": config.title, "subtitle": config.subtitle, "counts": counts,
         "lineages": lineages,
         "pages": [{"title": p.title, "href": links.pages[p.name],
-                   "summary": plain_text(p.body, 160)}
+                   "summary": plain_text(p.body, 160), "lang": p.fallback_lang}
                   for p in atlas.pages],
         "recent": [{"title": o.title, "href": links.objects[o.id]}
                    for o in sorted(visible, key=lambda o: o.title)[:12]],
@@ -70,7 +73,7 @@ def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> lis
         if tree.tip[v] >= 0:
             obj = atlas.objects[nid]
             events.append({"event": "tip", "title": obj.title if not obj.withheld else
-                           "Withheld object", "href": links.objects[nid]})
+                           atlas.i18n.gettext("Withheld object"), "href": links.objects[nid]})
             continue
         events.append({"event": "open", "title": node_title(atlas, results, v, notes_by_node),
                        "href": links.nodes[nid], "support": fmt(results.summary.support[v])})
@@ -83,15 +86,17 @@ def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> lis
 def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
               use_lengths: bool) -> PagePlan:
     summary = results.summary
-    method = {"majority": "majority-rule consensus", "mcc": "maximum clade credibility tree",
-              "given": "summary tree given with the study"}[summary.method]
+    _ = atlas.i18n.gettext
+    method = {"majority": _("majority-rule consensus"),
+              "mcc": _("maximum clade credibility tree"),
+              "given": _("summary tree given with the study")}[summary.method]
     internal = [v for v in range(results.tree.n_nodes) if results.tree.tip[v] < 0
                 and v != results.tree.root]
     supports = summary.support[internal] if internal else np.array([])
     return PagePlan("tree.html", "tree.html", {
-        "kind": "tree", "title": "Lineage tree",
+        "kind": "tree", "title": _("Lineage tree"),
         "method": method, "n_trees": summary.n_trees,
-        "axis": "branch lengths as given in the trees" if use_lengths else "equal steps",
+        "axis": _("branch lengths as given in the trees") if use_lengths else _("equal steps"),
         "outgroup": [atlas.objects[o].title for o in atlas.config.analysis["outgroup"]],
         "n_clades": len(internal),
         "well_supported": int(np.sum(supports >= 0.95)) if len(supports) else 0,
@@ -102,30 +107,34 @@ def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
 def _place_rows(atlas: Atlas, links: Links) -> tuple[list[dict], list[dict]]:
     by_place: dict[str, list] = defaultdict(list)
     unplaced = []
+    _ = atlas.i18n.gettext
     for obj in atlas.visible_objects():
         place = atlas.places.get(obj.place) if obj.place else None
         if place is None or not place.has_coordinates:
             unplaced.append({"title": obj.title, "href": links.objects[obj.id],
-                             "why": "location withheld" if obj.place_withheld or (
+                             "why": _("location withheld") if obj.place_withheld or (
                                  place is not None and place.precision == "withheld")
-                             else "no coordinates" if place is not None else "no place recorded"})
+                             else _("no coordinates") if place is not None
+                             else _("no place recorded")})
         by_place[obj.place or ""].append(obj)
     rows = []
     for pid, place in sorted(atlas.places.items(), key=lambda kv: kv[1].name):
         rows.append({"name": place.name, "href": links.places[pid],
                      "count": len(by_place.get(pid, [])),
-                     "where": _where(place)})
+                     "where": _where(atlas, place)})
     unplaced.sort(key=lambda r: r["title"])
     return rows, unplaced
 
 
-def _where(place) -> str:
+def _where(atlas: Atlas, place) -> str:
+    _ = atlas.i18n.gettext
     if place.precision == "withheld":
-        return "withheld"
+        return _("withheld")
     if not place.has_coordinates:
-        return "no coordinates"
+        return _("no coordinates")
     if place.precision == "generalised":
-        return f"about {fmt(place.lat, 1)}, {fmt(place.lon, 1)} (generalised)"
+        return _("about {lat}, {lon} (generalised)").format(lat=fmt(place.lat, 1),
+                                                            lon=fmt(place.lon, 1))
     return f"{fmt(place.lat, 4)}, {fmt(place.lon, 4)}"
 
 
@@ -133,7 +142,8 @@ def map_page(atlas: Atlas, results: Results, links: Links,
              legend: list[tuple[int, str]] = ()) -> PagePlan:
     rows, unplaced = _place_rows(atlas, links)
     return PagePlan("map.html", "map.html", {
-        "kind": "map", "title": "Distribution map", "places": rows, "unplaced": unplaced,
+        "kind": "map", "title": atlas.i18n.gettext("Distribution map"), "places": rows,
+        "unplaced": unplaced,
         "legend": [{"index": k, "title": t} for k, t in legend],
         "has_generalised": any(p.precision == "generalised" for p in atlas.places.values()),
     }, scripts=MAP_SCRIPTS)
@@ -144,9 +154,10 @@ def place_page(atlas: Atlas, results: Results, links: Links, pid: str) -> PagePl
     path = links.places[pid]
     root = root_of(path)
     objects = [o for o in atlas.visible_objects() if o.place == pid]
-    facts = [("Place id", pid), ("Coordinates", _where(place))]
+    _ = atlas.i18n.gettext
+    facts = [(_("Place id"), pid), (_("Coordinates"), _where(atlas, place))]
     for lang, name in sorted(place.names.items()):
-        facts.append((f"Name ({lang})", name))
+        facts.append((_("Name ({lang})").format(lang=lang), name))
     return PagePlan(path, "place.html", {
         "kind": "place", "title": place.name, "facts": facts, "place_id": pid,
         "static_map": f"figures/places/{path.rsplit('/', 1)[1][:-5]}.svg"
@@ -155,7 +166,7 @@ def place_page(atlas: Atlas, results: Results, links: Links, pid: str) -> PagePl
         "objects": [{"title": o.title, "href": root + links.objects[o.id],
                      "period": o.period, "community": o.community}
                     for o in sorted(objects, key=lambda o: o.title)],
-        "breadcrumbs": [("Distribution map", root + "map.html")],
+        "breadcrumbs": [(_("Distribution map"), root + "map.html")],
     }, scripts=MAP_SCRIPTS if place.has_coordinates else ())
 
 
@@ -174,21 +185,26 @@ def _diagnostics(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
             if len(top) == 8:
                 break
     facts = []
+    _ = atlas.i18n.gettext
     if diag.delta is not None:
-        facts += [("Mean delta score", fmt(diag.delta.mean_delta, 3)),
-                  ("Mean Q-residual", fmt(diag.delta.mean_q_residual, 4)),
-                  ("Quartets", f"{diag.delta.n_quartets:,}"
-                   + (" (a seeded sample)" if diag.delta.sampled else " (all)"))]
+        quartets = f"{diag.delta.n_quartets:,}"
+        facts += [(_("Mean delta score"), fmt(diag.delta.mean_delta, 3)),
+                  (_("Mean Q-residual"), fmt(diag.delta.mean_q_residual, 4)),
+                  (_("Quartets"), (_("{n} (a seeded sample)") if diag.delta.sampled
+                                   else _("{n} (all)")).format(n=quartets))]
     if diag.mantel is not None:
-        facts += [("Mantel r, geographic against patristic distance", fmt(diag.mantel.r, 3)),
-                  ("Mantel p", f"{diag.mantel.p:.3f} ({diag.mantel.permutations} permutations,"
-                               f" {diag.mantel.n} objects with coordinates)")]
+        facts += [(_("Mantel r, geographic against patristic distance"), fmt(diag.mantel.r, 3)),
+                  (_("Mantel p"), _("{p} ({permutations} permutations, {n} objects with "
+                                    "coordinates)").format(p=f"{diag.mantel.p:.3f}",
+                                                           permutations=diag.mantel.permutations,
+                                                           n=diag.mantel.n))]
     tips = results.tree.tip >= 0
     if diag.from_root is not None:
         values = diag.from_root[tips]
-        facts += [("Expected changes from the root to an object",
-                   f"median {np.median(values):.2f}, range {values.min():.2f} to "
-                   f"{values.max():.2f}")]
+        facts += [(_("Expected changes from the root to an object"),
+                   _("median {median}, range {low} to {high}").format(
+                       median=f"{np.median(values):.2f}", low=f"{values.min():.2f}",
+                       high=f"{values.max():.2f}"))]
     violations = []
     for x in diag.violations:
         violations.append({"title": node_title(atlas, results, x.node, notes_by_node),
@@ -213,58 +229,71 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
     internal = [v for v in range(results.tree.n_nodes)
                 if results.tree.tip[v] < 0 and v != results.tree.root]
     supports = summary.support[internal] if internal else np.array([])
+    _ = atlas.i18n.gettext
     data = [
-        ("Objects (tips of the trees)", str(n_taxa)),
-        ("Objects without a matrix row", str(n_taxa - len(coded))),
-        ("Discrete characters", str(len(atlas.discrete))),
-        ("Continuous characters", str(len(atlas.continuous_characters))),
-        ("Unknown cells (?)",
-         f"{missing} of {total_cells} ({100 * missing / max(total_cells, 1):.1f}%)"),
-        ("Not applicable cells (-)", str(gaps)),
-        ("Polymorphic cells", str(poly)),
+        (_("Objects (tips of the trees)"), str(n_taxa)),
+        (_("Objects without a matrix row"), str(n_taxa - len(coded))),
+        (_("Discrete characters"), str(len(atlas.discrete))),
+        (_("Continuous characters"), str(len(atlas.continuous_characters))),
+        (_("Unknown cells (?)"),
+         _("{n} of {total} ({percent}%)").format(
+             n=missing, total=total_cells, percent=f"{100 * missing / max(total_cells, 1):.1f}")),
+        (_("Not applicable cells (-)"), str(gaps)),
+        (_("Polymorphic cells"), str(poly)),
     ]
     trees = [
-        ("Tree file", sample.file),
-        ("Trees read", str(sample.read)),
-        ("Burn-in", f"{sample.burnin} trees ({100 * analysis['burnin']:.0f}%)"),
-        ("Trees used", str(len(sample.trees))),
-        ("Trees averaged for ancestral states",
+        (_("Tree file"), sample.file),
+        (_("Trees read"), str(sample.read)),
+        (_("Burn-in"), _("{n} trees ({percent}%)").format(
+            n=sample.burnin, percent=f"{100 * analysis['burnin']:.0f}")),
+        (_("Trees used"), str(len(sample.trees))),
+        (_("Trees averaged for ancestral states"),
          str(min(len(sample.trees), analysis["ancestral_trees"] or len(sample.trees)))),
-        ("Summary tree", summary.method),
-        ("Outgroup", ", ".join(analysis["outgroup"]) or "none: trees are rooted as written"),
-        ("Clades in the summary tree", str(len(internal))),
-        ("Clades with support of 0.95 or more", str(int(np.sum(supports >= 0.95)))),
+        (_("Summary tree"), summary.method),
+        (_("Outgroup"), ", ".join(analysis["outgroup"]) or _("none: trees are rooted as written")),
+        (_("Clades in the summary tree"), str(len(internal))),
+        (_("Clades with support of 0.95 or more"), str(int(np.sum(supports >= 0.95)))),
     ]
-    parsimony = [("Tree length (steps)", str(int(par.length)))]
-    for label, attr in (("Ensemble consistency index (CI)", "ensemble_ci"),
-                        ("Ensemble retention index (RI)", "ensemble_ri"),
-                        ("Rescaled consistency index (RC)", "ensemble_rc")):
+    parsimony = [(_("Tree length (steps)"), str(int(par.length)))]
+    for label, attr in ((_("Ensemble consistency index (CI)"), "ensemble_ci"),
+                        (_("Ensemble retention index (RI)"), "ensemble_ri"),
+                        (_("Rescaled consistency index (RC)"), "ensemble_rc")):
         parsimony.append((label, fmt(float(getattr(results.indices, attr)), 3)))
     model = []
     fit = results.fit
     if fit is not None:
-        model = [("Model", {"mk": "Mk (equal rates)",
-                            "mk-gain-loss": "Mk with separate gain and loss rates"}[fit.model]
-                  + (", Mkv correction for variable characters" if fit.variable_only else "")),
-                 ("Rate variation", "four discrete gamma categories" if fit.alpha is not None
-                  else "equal rates"),
-                 *[(f"Rate ({k})", f"{v:.4g}") for k, v in sorted(fit.rates.items())],
-                 *([("Gamma shape (alpha)", f"{fit.alpha:.3g}")] if fit.alpha is not None else []),
-                 ("Log-likelihood", f"{fit.loglik:.2f}")]
-    paragraph = (
-        f"The atlas summarises {len(sample.trees)} trees sampled after discarding the first "
-        f"{sample.burnin} of {sample.read} as burn-in, as a "
-        f"{'majority-rule consensus tree' if summary.method == 'majority' else 'summary tree'} "
-        f"with clade support given as the fraction of sampled trees that contain each clade. "
-        f"Ancestral states were reconstructed by parsimony (Fitch 1971) and by maximum "
-        f"likelihood under the Mk model (Lewis 2001)"
-        + (" with gamma-distributed rates across characters (Yang 1994)"
-           if fit is not None and fit.alpha is not None else "")
-        + "; state probabilities at each clade are averaged over the sampled trees that contain "
-        "it, and expected numbers of changes per branch follow Minin & Suchard (2008)."
-    )
+        model = [(_("Model"), {"mk": _("Mk (equal rates)"),
+                               "mk-gain-loss": _("Mk with separate gain and loss rates")}[
+                                   fit.model]
+                  + (_(", Mkv correction for variable characters") if fit.variable_only else "")),
+                 (_("Rate variation"), _("four discrete gamma categories")
+                  if fit.alpha is not None else _("equal rates")),
+                 *[(_("Rate ({name})").format(name=k), f"{v:.4g}")
+                   for k, v in sorted(fit.rates.items())],
+                 *([(_("Gamma shape (alpha)"), f"{fit.alpha:.3g}")]
+                   if fit.alpha is not None else []),
+                 (_("Log-likelihood"), f"{fit.loglik:.2f}")]
+    numbers = {"n": len(sample.trees), "burnin": sample.burnin, "read": sample.read}
+    first = (_("The atlas summarises {n} trees sampled after discarding the first {burnin} of "
+               "{read} as burn-in, as a majority-rule consensus tree with clade support given as "
+               "the fraction of sampled trees that contain each clade.")
+             if summary.method == "majority" else
+             _("The atlas summarises {n} trees sampled after discarding the first {burnin} of "
+               "{read} as burn-in, as a summary tree with clade support given as the fraction "
+               "of sampled trees that contain each clade.")).format(**numbers)
+    second = (_("Ancestral states were reconstructed by parsimony (Fitch 1971) and by maximum "
+                "likelihood under the Mk model (Lewis 2001) with gamma-distributed rates across "
+                "characters (Yang 1994); state probabilities at each clade are averaged over the "
+                "sampled trees that contain it, and expected numbers of changes per branch "
+                "follow Minin & Suchard (2008).")
+              if fit is not None and fit.alpha is not None else
+              _("Ancestral states were reconstructed by parsimony (Fitch 1971) and by maximum "
+                "likelihood under the Mk model (Lewis 2001); state probabilities at each clade "
+                "are averaged over the sampled trees that contain it, and expected numbers of "
+                "changes per branch follow Minin & Suchard (2008)."))
+    paragraph = first + " " + second
     return PagePlan("methods.html", "methods.html", {
-        "kind": "methods", "title": "Methods", "paragraph": paragraph, "data": data,
+        "kind": "methods", "title": _("Methods"), "paragraph": paragraph, "data": data,
         "trees": trees, "parsimony": parsimony, "model": model,
         "references": [REFERENCES[k] for k in ("margush", "fitch", "kluge", "farris", "lewis",
                                                "collard", "yang", "minin", "holland", "gray",
@@ -277,16 +306,24 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
 def _gaps(atlas: Atlas, links: Links) -> list[dict]:
     """Published objects with missing data, by kind (withheld objects are not named)."""
     visible = sorted(atlas.visible_objects(), key=lambda o: o.title)
+    ngettext = atlas.i18n.ngettext
     kinds = [
         ("without a row in the trait matrix (their traits are unknown)",
-         [o for o in visible if not o.has_row]),
-        ("without a note", [o for o in visible if not o.has_note]),
+         [o for o in visible if not o.has_row],
+         lambda n: ngettext("{n} object without a row in the trait matrix (its traits are "
+                            "unknown)", "{n} objects without a row in the trait matrix (their "
+                            "traits are unknown)", n)),
+        ("without a note", [o for o in visible if not o.has_note],
+         lambda n: ngettext("{n} object without a note", "{n} objects without a note", n)),
         ("without a place on the map", [
             o for o in visible if not (o.place and atlas.places[o.place].has_coordinates
-                                       and atlas.places[o.place].precision != "withheld")]),
+                                       and atlas.places[o.place].precision != "withheld")],
+         lambda n: ngettext("{n} object without a place on the map",
+                            "{n} objects without a place on the map", n)),
     ]
-    return [{"what": what, "objects": [{"title": o.title, "href": links.objects[o.id]}
-                                       for o in objs]} for what, objs in kinds if objs]
+    return [{"what": what, "heading": heading(len(objs)).format(n=len(objs)),
+             "objects": [{"title": o.title, "href": links.objects[o.id]} for o in objs]}
+            for what, objs, heading in kinds if objs]
 
 
 def credits_page(atlas: Atlas, links: Links) -> PagePlan:
@@ -302,7 +339,8 @@ def credits_page(atlas: Atlas, links: Links) -> PagePlan:
                            "href": links.characters[c.id]})
     images.sort(key=lambda r: (r["file"], r["of"]))
     return PagePlan("credits.html", "credits.html", {
-        "kind": "credits", "title": "Credits", "licence": atlas.config.licence,
+        "kind": "credits", "title": atlas.i18n.gettext("Credits"),
+        "licence": atlas.config.licence,
         "credits": list(atlas.config.credits),
         "images": images,
     })
@@ -315,7 +353,7 @@ def data_page(atlas: Atlas, links: Links) -> PagePlan:
     generalised = sorted(p.name for p in atlas.places.values() if p.precision == "generalised")
     withheld_places = sum(1 for p in atlas.places.values() if p.precision == "withheld")
     return PagePlan("about-data.html", "about-data.html", {
-        "kind": "about-data", "title": "About this data",
+        "kind": "about-data", "title": atlas.i18n.gettext("About this data"),
         "profile": atlas.profile.name, "levels": list(atlas.profile.access),
         "withheld": sum(1 for o in objects if o.withheld),
         "generalised": generalised, "withheld_places": withheld_places,
@@ -326,17 +364,19 @@ def data_page(atlas: Atlas, links: Links) -> PagePlan:
 def free_page(atlas: Atlas, links: Links, page) -> PagePlan:
     path = links.pages[page.name]
     return PagePlan(path, "page.html", {
-        "kind": "page", "title": page.title,
+        "kind": "page", "title": page.title, "lang": page.fallback_lang,
         "body": render_markdown(page.body, root_of(path), links.targets),
     })
 
 
-def layout_data(layout: list[LayoutNode], use_lengths: bool, outgroup) -> dict:
+def layout_data(layout: list[LayoutNode], use_lengths: bool, outgroup,
+                gettext: Callable[[str], str] = str) -> dict:
+    _ = gettext
     return {
         "nodes": [{"id": n.id if not n.withheld else "", "kind": n.kind, "x": n.x, "y": n.y,
                    "parent": n.parent, "label": n.label, "href": n.href,
                    "support": n.support, "withheld": n.withheld} for n in layout],
-        "x_title": "Branch length" if use_lengths else "Steps from the root",
+        "x_title": _("Branch length") if use_lengths else _("Steps from the root"),
         "x_axis": "depth",
         "outgroup": list(outgroup),
     }

@@ -14,7 +14,17 @@ from pathlib import Path
 from ..analysis.results import Results
 from ..model import Atlas
 from ..stats import study_stats
-from . import downloads, images, overview, search, treedata, views
+from . import (
+    downloads,
+    images,
+    overview,
+    paging,
+    search,
+    statemaps,
+    statfigures,
+    treedata,
+    views,
+)
 from .figures import tree_layout, tree_svg
 from .mapsvg import land_paths, map_svg
 from .views import Links, PagePlan
@@ -117,7 +127,8 @@ def static_maps(atlas: Atlas, links: Links, places: list[dict]) -> dict[str, str
                "href": "../" + p["href"], "count": max(len(p["objects"]), 1),
                "precision": p["precision"]} for p in places]
     files = {"figures/map.svg": map_svg(points, rings=land, extra_polygons=region,
-                                        title=f"Distribution map of {atlas.config.title}")}
+                                        title=atlas.i18n.gettext("Distribution map of {title}")
+                                        .format(title=atlas.config.title))}
     if points:
         lats = [p["lat"] for p in points]
         lons = [p["lon"] for p in points]
@@ -128,7 +139,8 @@ def static_maps(atlas: Atlas, links: Links, places: list[dict]) -> dict[str, str
             files[f"figures/places/{name}.svg"] = map_svg(
                 [{**point, "href": "../../" + place["href"]}], rings=land,
                 extra_polygons=region, bounds=bounds, width=480,
-                title=f"Where {place['name']} lies in the study area", svg_id="place-map")
+                title=atlas.i18n.gettext("Where {place} lies in the study area").format(
+                    place=place["name"]), svg_id="place-map")
     return files
 
 
@@ -141,7 +153,7 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     for v, nid in enumerate(results.ids):
         if tree.tip[v] >= 0:
             obj = atlas.objects[nid]
-            labels.append(obj.title if not obj.withheld else "Withheld")
+            labels.append(obj.title if not obj.withheld else atlas.i18n.gettext("Withheld"))
             hrefs.append(links.objects[nid])
             if obj.withheld:
                 withheld.add(v)
@@ -152,28 +164,37 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
                                       withheld)
 
     colours, legend = lineage_colours(atlas, results, notes_by_node)
+    study_view = statemaps.study_view(atlas)  # the window of the layered static maps
+    state_rows = {c.id: statemaps.state_rows(atlas, c) for c in atlas.discrete}  # used twice
+    method_figures, method_files = statfigures.methods_figures(atlas, results)
     pages: list[PagePlan] = [
         overview.home_page(atlas, results, links, notes_by_node),
         treedata.tree_page_plot(
             overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas),
         overview.map_page(atlas, results, links, legend),
-        views.glossary_page(atlas, results, links),
-        overview.methods_page(atlas, results, links, notes_by_node),
+        *paging.paged_glossary(views.glossary_page(atlas, results, links),
+                               atlas.i18n.gettext("Glossary")),
+        statfigures.methods_page_figures(
+            overview.methods_page(atlas, results, links, notes_by_node), method_figures),
         overview.credits_page(atlas, links),
         overview.data_page(atlas, links),
     ]
     for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):
-        pages.append(views.object_page(atlas, results, links, layout, obj, notes_by_node))
+        pages += paging.paged(views.object_page(atlas, results, links, layout, obj,
+                                                notes_by_node), "object",
+                              atlas.i18n.gettext("Traits as coded"))
     for v, nid in enumerate(results.ids):
         if tree.tip[v] < 0:
             node = views.node_page(atlas, results, links, layout, v, notes_by_node)
             if node.context["place_ids"]:  # a map of the clade's places
                 node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
-            pages.append(node)
+                node = statemaps.node_page_map(node, atlas, results, v, study_view)
+            pages += paging.paged(node, "node", atlas.i18n.gettext("Reconstructed traits"))
             pages.append(views.brief_page(atlas, results, links, v, notes_by_node))
     for c in atlas.characters:
-        pages.append(treedata.character_page_plot(
-            views.character_page(atlas, results, links, c, notes_by_node), c))
+        pages.append(statemaps.character_page_map(treedata.character_page_plot(
+            views.character_page(atlas, results, links, c, notes_by_node), c),
+            atlas, links, c, study_view, state_rows.get(c.id)))
     for pid in sorted(atlas.places):
         pages.append(overview.place_page(atlas, results, links, pid))
     for page in atlas.pages:
@@ -194,24 +215,28 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
     mapped = places_data(atlas, links, results, colours)
     data = {
         "data/tree.js": js_global("tree", overview.layout_data(
-            layout, use_lengths, atlas.config.analysis["outgroup"])),
+            layout, use_lengths, atlas.config.analysis["outgroup"], atlas.i18n.gettext)),
         "data/places.js": js_global("places", mapped),
         "data/world.js": world_js(),
         "data/basemap.js": js_global("basemap", atlas.basemap),
+        statemaps.MATRIX_SCRIPT: js_global("matrix", statemaps.matrix_data(atlas)),
     }
     data.update(treedata.data_files(atlas, results))  # data/states.js, data/contacts.js
     data.update(search_data)
     copies = {"assets/plotly.min.js": plotly_js()}
-    files = {"figures/tree.svg": tree_svg(layout, "../", title=f"Lineage tree of "
-                                          f"{atlas.config.title}", standalone=True)}
+    _ = atlas.i18n.gettext
+    files = {"figures/tree.svg": tree_svg(layout, "../", title=_("Lineage tree of {title}")
+                                          .format(title=atlas.config.title), standalone=True)}
     files.update(static_maps(atlas, links, mapped))
+    files.update(statemaps.layered_files(atlas, results, links, study_view, state_rows))
+    files.update(method_files)
     files.update(download_files)
     if not atlas.profile.kiosk:
         files.update(downloads.sitemap(atlas.config.base_url, pages))
-    nav = [("Lineage tree", "tree.html"), ("Distribution map", "map.html"),
-           ("Glossary", "glossary.html"), ("Methods", "methods.html")]
+    nav = [(_("Lineage tree"), "tree.html"), (_("Distribution map"), "map.html"),
+           (_("Glossary"), "glossary.html"), (_("Methods"), "methods.html")]
     nav += [(p.title, links.pages[p.name]) for p in atlas.pages]
-    nav.append(("Search", "search.html"))
+    nav.append((_("Search"), "search.html"))
     if not atlas.profile.kiosk:
-        nav.append(("Downloads", "downloads/index.html"))
+        nav.append((_("Downloads"), "downloads/index.html"))
     return SitePlan(pages, data, copies, files, links, nav, media)

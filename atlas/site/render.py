@@ -9,15 +9,20 @@ A theme is a folder with ``templates/`` and ``assets/``; a theme may name a pare
 from __future__ import annotations
 
 import tomllib
+from collections.abc import Sequence
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 
 import jinja2
 
+from ..cache import Cache
 from ..errors import AtlasError, Problem
+from ..i18n import load_translations
 from . import downloads
+from .languages import language_links
 from .plan import SitePlan
+from .renderpool import render_pages
 from .views import PagePlan, root_of
 
 
@@ -50,7 +55,9 @@ def find_theme(name: str) -> Theme:
     return Theme(name, tuple(folders))
 
 
-def environment(theme: Theme) -> jinja2.Environment:
+def environment(theme: Theme, language: str = "en") -> jinja2.Environment:
+    """The one Jinja environment of a theme, speaking ``language`` (its gettext catalogue,
+    read by :func:`atlas.i18n.load_translations`; English when it has none)."""
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader([str(f / "templates") for f in theme.folders]),
         autoescape=True,
@@ -60,9 +67,10 @@ def environment(theme: Theme) -> jinja2.Environment:
         keep_trailing_newline=True,
         extensions=["jinja2.ext.i18n"],
     )
-    # Interface strings are marked with _() and {% trans %}; until a catalogue is chosen they
-    # pass through unchanged.
-    env.install_null_translations(newstyle=True)
+    # Interface strings are marked with _() and {% trans %} (whitespace trimmed, as the
+    # extraction in atlas.i18n reads them); newstyle gettext escapes its arguments.
+    env.policies["ext.i18n.trimmed"] = True
+    env.install_gettext_translations(load_translations(language), newstyle=True)
     return env
 
 
@@ -75,6 +83,10 @@ class SiteInfo:
     idle_seconds: int
     language: str
     generator: str
+    # Every interface language as (code, name in itself, output folder prefix), and this
+    # rendering's prefix ("" for the default language at the root, else "<lang>/").
+    languages: tuple[tuple[str, str, str], ...] = ()
+    prefix: str = ""
 
 
 def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
@@ -86,12 +98,23 @@ def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
         scripts=[root + s for s in page.scripts],
         nav=[{"label": label, "href": root + href, "current": href == page.path}
              for label, href in site.nav],
+        languages=language_links(site, page.path) if len(site.languages) > 1 else [],
     )
 
 
-def render_site(plan: SitePlan, theme: Theme, site: SiteInfo) -> dict[str, str]:
-    env = environment(theme)
-    html = {page.path: render_page(env, page, site) for page in plan.pages}
+def render_all(theme: Theme, site: SiteInfo, pages: Sequence[PagePlan]) -> list[str]:
+    """Render ``pages`` through one environment (in whichever process runs it)."""
+    env = environment(theme, site.language)
+    html = [render_page(env, page, site) for page in pages]
     if site.kiosk:  # nothing leads out of the gallery kiosk
-        html = {path: downloads.unlink_external(text) for path, text in html.items()}
+        html = [downloads.unlink_external(text) for text in html]
     return html
+
+
+def render_site(plan: SitePlan, theme: Theme, site: SiteInfo, *, jobs: int = 1,
+                cache: Cache | None = None, cache_label: str = "") -> dict[str, str]:
+    """Every page's HTML by path: ``jobs`` processes, unchanged pages from ``cache``
+    (see :mod:`atlas.site.renderpool`; the output is the same either way)."""
+    html = render_pages(plan.pages, theme, site, render_all, jobs=jobs, cache=cache,
+                        label=cache_label)
+    return {page.path: text for page, text in zip(plan.pages, html)}

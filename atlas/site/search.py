@@ -110,10 +110,24 @@ def search_plan(atlas: Atlas, results: Results, links: Links) -> tuple[PagePlan,
     """The search page (``search.html``) and its data script (``data/search.js``)."""
     from .plan import js_global  # here, not at the top: plan imports this module
 
+    _, ngettext = atlas.i18n.gettext, atlas.i18n.ngettext
     index = search_index(atlas, results, links)
     kinds = sorted({e["k"] for e in index})
+    names = {"object": _("Object"), "character": _("Character"), "place": _("Place"),
+             "page": _("Page"), "clade": _("Clade")}
+    counted = {
+        "object": lambda n: ngettext("object", "objects", n),
+        "character": lambda n: ngettext("character", "characters", n),
+        "place": lambda n: ngettext("place", "places", n),
+        "page": lambda n: ngettext("page", "pages", n),
+        "clade": lambda n: ngettext("clade", "clades", n),
+    }
+    rows = []
+    for k in kinds:
+        n = sum(1 for e in index if e["k"] == k)
+        rows.append({"kind": k, "count": n, "name": counted[k](n) if k in counted else k})
     page = PagePlan("search.html", "search.html", {
-        "kind": "search", "title": "Search", "count": len(index),
-        "kinds": [{"kind": k, "count": sum(1 for e in index if e["k"] == k)} for k in kinds],
+        "kind": "search", "title": _("Search"), "count": len(index), "kinds": rows,
+        "kind_names": names,
     }, scripts=SCRIPTS)
     return page, {"data/search.js": js_global("search", {"entries": index})}

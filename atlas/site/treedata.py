@@ -147,7 +147,8 @@ def shade_choices(atlas: Atlas) -> list[dict]:
     """The discrete characters for the "Shade by trait" control, grouped, in matrix order."""
     groups: dict[str, list[dict]] = {}
     for c in atlas.discrete:
-        groups.setdefault(c.group or "Other traits", []).append({"id": c.id, "label": c.label})
+        group = c.group or atlas.i18n.gettext("Other traits")
+        groups.setdefault(group, []).append({"id": c.id, "label": c.label})
     return [{"group": g, "characters": chars} for g, chars in groups.items()]
 
 

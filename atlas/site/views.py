@@ -17,6 +17,7 @@ import numpy as np
 from ..analysis.results import Results
 from ..link import slug
 from ..model import ArtObject, Atlas, Character
+from . import ledger
 from .figures import LayoutNode, neighbourhood, tree_svg
 from .markdown import Targets, render_markdown
 
@@ -122,7 +123,20 @@ def node_title(atlas: Atlas, results: Results, v: int, notes_by_node: dict[int, 
     if notes_by_node.get(v):
         return notes_by_node[v][0].title
     n = len(results.members[v])
-    return "Root of the tree" if v == tree.root else f"Clade of {n} objects"
+    if v == tree.root:
+        return atlas.i18n.gettext("Root of the tree")
+    return atlas.i18n.ngettext("Clade of {n} object", "Clade of {n} objects", n).format(n=n)
+
+
+def fallback_lang(atlas: Atlas, item) -> str:
+    """The ``lang`` a page gives a note shown untranslated (``""`` when it is translated or
+    the page is in the note's language); for a character, whose notes are not translated,
+    the default language on every other language's pages."""
+    lang = getattr(item, "fallback_lang", None)
+    if lang is None:
+        default = atlas.config.languages[0]
+        return default if atlas.i18n.lang != default else ""
+    return lang
 
 
 def clade_notes_by_node(atlas: Atlas, results: Results) -> dict[int, list]:
@@ -141,24 +155,38 @@ def clade_notes_by_node(atlas: Atlas, results: Results) -> dict[int, list]:
     return dict(out)
 
 
+FIGURE_TIPS = 40  # larger neighbourhoods are not drawn inline (about 18 KB of SVG at 40)
+
+
+MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clades list all)
+
+
+def _drawable(local: list[LayoutNode]) -> bool:
+    """Small enough to draw on the page? A clade of hundreds of tips would weigh more than the
+    page budget; the page links to the lineage tree instead."""
+    return sum(1 for n in local if n.kind == "tip") <= FIGURE_TIPS
+
+
 def _member_chips(atlas: Atlas, links: Links, root: str, members) -> list[dict]:
     chips = []
     for m in members:
         obj = atlas.objects[m]
-        chips.append({"label": obj.title if not obj.withheld else "Withheld object",
+        chips.append({"label": obj.title if not obj.withheld
+                      else atlas.i18n.gettext("Withheld object"),
                       "href": root + links.objects[m] if links.objects[m] else "",
                       "id": "" if obj.withheld else m})
     return chips
 
 
-def _state_text(c: Character, cell: str) -> tuple[str, str]:
+def _state_text(atlas: Atlas, c: Character, cell: str) -> tuple[str, str]:
     """(symbol, description) of a matrix cell as a reader should see it."""
+    _ = atlas.i18n.gettext
     if cell in ("", "?"):
-        return "?", "unknown"
+        return "?", _("unknown")
     if cell == "-":
-        return "-", "not applicable"
+        return "-", _("not applicable")
     parts = cell.split("/")
-    return cell, " or ".join(c.describe(p) for p in parts)
+    return cell, _(" or ").join(c.describe(p) for p in parts)
 
 
 def _symbols_of(c: Character, mask: int) -> str:
@@ -182,35 +210,42 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
     v = results.ids.index(obj.id)
     tree = results.tree
     place = atlas.places.get(obj.place) if obj.place else None
-    facts = [("Object id", obj.id)]
+    _ = atlas.i18n.gettext
+    facts = [(_("Object id"), obj.id)]
     if obj.community:
-        facts.append(("Community", obj.community))
+        facts.append((_("Community"), obj.community))
     if obj.period:
-        facts.append(("Period", obj.period))
-    location = {"kind": "none", "text": "No place recorded", "href": ""}
+        facts.append((_("Period"), obj.period))
+    location = {"kind": "none", "text": _("No place recorded"), "href": ""}
     if place is not None:
         if place.precision == "withheld" or not place.has_coordinates:
-            text = "Location withheld" if place.precision == "withheld" else "No coordinates"
-            location = {"kind": "withheld", "text": f"{place.name}: {text.lower()}",
+            text = (_("{place}: location withheld") if place.precision == "withheld"
+                    else _("{place}: no coordinates")).format(place=place.name)
+            location = {"kind": "withheld", "text": text,
                         "href": root + links.places[place.id]}
         else:
             where = f"{place.name} ({fmt(place.lat, 4)}, {fmt(place.lon, 4)})"
             if place.precision == "generalised":
-                where = f"{place.name} (shown on a 1° grid to protect the find-spot)"
+                where = _("{place} (shown on a 1° grid to protect the find-spot)").format(
+                    place=place.name)
             location = {"kind": place.precision, "text": where,
                         "href": root + links.places[place.id]}
     elif obj.place_withheld:
-        location = {"kind": "withheld", "text": "Location withheld", "href": ""}
+        location = {"kind": "withheld", "text": _("Location withheld"), "href": ""}
     # Traits as coded, by group.
     cells = atlas.cells[obj.taxon]
     groups: dict[str, list[dict]] = defaultdict(list)
     for j, c in enumerate(atlas.characters):
         cell = cells[j] if cells else ""
-        symbol, description = (cell or "?", "unknown") if c.kind == "continuous" and cell in (
-            "", "?", "-") else ((cell, cell) if c.kind == "continuous" else _state_text(c, cell))
+        symbol, description = (cell or "?", _("unknown")) if c.kind == "continuous" and cell in (
+            "", "?", "-") else ((cell, cell) if c.kind == "continuous"
+                                else _state_text(atlas, c, cell))
+        evidence = ledger.cell_evidence(atlas, obj, c, root)
         groups[c.group].append({"label": c.label, "href": root + links.characters[c.id],
                                 "symbol": symbol, "description": description,
-                                "unknown": symbol in ("?", "-")})
+                                "unknown": symbol in ("?", "-"), "evidence": evidence,
+                                "ledger": root + links.characters[c.id] + "#"
+                                + ledger.anchor(links, obj.id) if evidence else ""})
     # The lineage: every ancestor from the root down.
     ancestors = []
     p = int(tree.parent[v])
@@ -224,7 +259,8 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
     local = neighbourhood(layout, parent if parent >= 0 else v)
     focus = next(n.index for n in local if n.id == obj.id)
     svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
-                   title=f"Where {obj.title} stands among its closest relatives")
+                   title=_("Where {title} stands among its closest relatives").format(
+                       title=obj.title)) if _drawable(local) else ""
     images = [{"src": root + "media/" + im.file, "alt": im.alt, "credit": im.credit,
                "licence": im.licence, "caption": im.caption} for im in obj.images]
     diagnostics = _object_diagnostics(atlas, results, links, obj, v, root, notes_by_node)
@@ -236,12 +272,13 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
         "kind": "object", "title": obj.title, "object": {"id": obj.id, "title": obj.title},
         "facts": facts, "location": location, "images": images,
         "body": render_markdown(obj.body, root, links.targets),
-        "has_note": obj.has_note, "has_row": obj.has_row,
+        "has_note": obj.has_note, "has_row": obj.has_row, "has_evidence": bool(atlas.evidence),
         "groups": [{"name": g, "rows": rows} for g, rows in groups.items()],
         "ancestors": ancestors, "svg": svg,
         "sources": list(obj.sources), "diagnostics": diagnostics, "static_map": static_map,
         "contacts": _contacts_of(atlas, links, root, {obj.id}),
-        "breadcrumbs": [("Lineage tree", root + "tree.html")],
+        "breadcrumbs": [(_("Lineage tree"), root + "tree.html")],
+        "lang": fallback_lang(atlas, obj),
     })
 
 
@@ -251,7 +288,8 @@ def _lineage_link(atlas: Atlas, results: Results, links: Links, v: int, root: st
     if results.tree.tip[v] >= 0:
         obj = atlas.objects[nid]
         href = links.objects[nid]
-        return {"title": obj.title if not obj.withheld else "Withheld object",
+        return {"title": obj.title if not obj.withheld
+                else atlas.i18n.gettext("Withheld object"),
                 "href": root + href if href else ""}
     return {"title": node_title(atlas, results, v, notes_by_node),
             "href": root + links.nodes[nid]}
@@ -262,11 +300,10 @@ def borrowing_rows(atlas: Atlas, results: Results, links: Links, root: str, note
     """Candidate borrowing between lineages, ranked, as table rows (withheld tips left out)."""
     rows = []
     discrete = atlas.discrete
-    for c in results.diagnostics.borrowing:
-        if involving is not None and involving not in (c.a, c.b):
-            continue
+    diag = results.diagnostics
+    for c in diag.borrowing if involving is None else diag.borrowing_by_node.get(involving, ()):
         ends = [_lineage_link(atlas, results, links, x, root, notes_by_node) for x in (c.a, c.b)]
-        if any(e["title"] == "Withheld object" for e in ends):
+        if any(e["title"] == atlas.i18n.gettext("Withheld object") for e in ends):
             continue
         rows.append({"a": ends[0], "b": ends[1], "score": fmt(c.score),
                      "characters": [{"label": discrete[j].label,
@@ -312,7 +349,8 @@ def _object_diagnostics(atlas: Atlas, results: Results, links: Links, obj: ArtOb
     return {
         "delta": fmt(delta[0], 3) if delta else "",
         "q_residual": fmt(delta[1], 4) if delta else "",
-        "rank": f"{rank} of {len(diag.delta_taxa)}" if rank else "",
+        "rank": atlas.i18n.gettext("{rank} of {n}").format(rank=rank, n=len(diag.delta_taxa))
+        if rank else "",
         "mean_delta": fmt(diag.delta.mean_delta, 3) if diag.delta is not None else "",
         "from_root": fmt(float(from_root[v])) if from_root is not None else "",
         "median_from_root": fmt(float(np.median(from_root[results.tree.tip >= 0])))
@@ -331,15 +369,17 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     count = int(results.summary.count[v])
     n_trees = results.summary.n_trees
     title = node_title(atlas, results, v, notes_by_node)
+    _, ngettext = atlas.i18n.gettext, atlas.i18n.ngettext
     facts = [
-        ("Node id", nid),
-        ("Posterior probability (clade support)", fmt(support)),
-        ("Sampled trees with this clade", f"{count} of {n_trees}"),
-        ("Objects in the clade", str(len(results.members[v]))),
+        (_("Node id"), nid),
+        (_("Posterior probability (clade support)"), fmt(support)),
+        (_("Sampled trees with this clade"), _("{rank} of {n}").format(rank=count, n=n_trees)),
+        (_("Objects in the clade"), str(len(results.members[v]))),
     ]
     if results.fit is not None:
-        facts.append(("Reconstruction averaged over",
-                      f"{int(results.prob_trees[v])} sampled trees"))
+        n = int(results.prob_trees[v])
+        facts.append((_("Reconstruction averaged over"),
+                      ngettext("{n} sampled tree", "{n} sampled trees", n).format(n=n)))
     parent = int(tree.parent[v])
     up = None
     if parent >= 0:
@@ -351,7 +391,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         if tree.tip[c] >= 0:
             obj = atlas.objects[cid]
             href = links.objects[cid]
-            children.append({"title": obj.title if not obj.withheld else "Withheld object",
+            children.append({"title": obj.title if not obj.withheld
+                             else _("Withheld object"),
                              "href": root + href if href else "", "kind": "object",
                              "support": ""})
         else:
@@ -361,18 +402,20 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     groups = _reconstruction(atlas, results, links, v, root)
     stem = _stem_changes(atlas, results, links, v, root)
     defining = defining_traits(atlas, results, links, v, root)
-    notes = [{"title": n.title, "body": render_markdown(n.body, root, links.targets)}
-             for n in notes_by_node.get(v, [])]
+    notes = [{"title": n.title, "body": render_markdown(n.body, root, links.targets),
+              "lang": fallback_lang(atlas, n)} for n in notes_by_node.get(v, [])]
     local = neighbourhood(layout, v)
     focus = next(n.index for n in local if n.id == nid)
     svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
-                   title=f"The clade below {title}")
+                   title=_("The clade below {title}").format(title=title)) \
+        if _drawable(local) else ""
     places = sorted({atlas.objects[m].place for m in results.members[v]
                      if atlas.objects[m].place and atlas.objects[m].place in atlas.places})
     rng = results.diagnostics.ranges.get(v)
     if rng is not None:
-        facts.append(("Range of its places", f"{rng.n} places, about {rng.spread_km:,.0f} km "
-                      f"from their centre, hull {rng.area_km2:,.0f} km²"))
+        facts.append((_("Range of its places"), _(
+            "{n} places, about {spread} km from their centre, hull {area} km²").format(
+                n=rng.n, spread=f"{rng.spread_km:,.0f}", area=f"{rng.area_km2:,.0f}")))
     violations = [{"text": violation_text(atlas, x), "note": x.rule.note}
                   for x in results.diagnostics.violations if x.node == v]
     names = {n.name for n in notes_by_node.get(v, [])}
@@ -382,14 +425,15 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "borrowing": borrowing_rows(atlas, results, links, root, notes_by_node, involving=v),
         "contacts": _contacts_of(atlas, links, root, names),
         "children": children,
-        "members": _member_chips(atlas, links, root, results.members[v]),
+        "members": _member_chips(atlas, links, root, results.members[v][:MEMBER_CHIPS]),
+        "members_more": max(0, len(results.members[v]) - MEMBER_CHIPS),
         "groups": groups, "stem": stem, "notes": notes, "svg": svg, "defining": defining,
         "brief": root + brief_path(nid),
         "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
                    for p in places],
         "place_ids": " ".join(p for p in places if atlas.places[p].has_coordinates
                               and atlas.places[p].precision != "withheld"),
-        "breadcrumbs": [("Lineage tree", root + "tree.html")],
+        "breadcrumbs": [(_("Lineage tree"), root + "tree.html")],
         "uncertain_threshold": fmt(UNCERTAIN),
     })
 
@@ -399,10 +443,13 @@ def violation_text(atlas: Atlas, x) -> str:
     when_c, when_s = x.rule.when
     w = by_id[when_c]
     c = by_id[x.character]
-    verb = "needs" if x.kind == "needs" else "rules out"
-    return (f"When {w.label} is {w.describe(when_s)}, the rule {verb} {c.label}: "
-            f"{c.describe(x.state)}; the most probable reconstruction here is "
-            f"{c.describe(x.found)}.")
+    _ = atlas.i18n.gettext
+    text = (_("When {when} is {when_state}, the rule needs {character}: {state}; the most "
+              "probable reconstruction here is {found}.") if x.kind == "needs" else
+            _("When {when} is {when_state}, the rule rules out {character}: {state}; the most "
+              "probable reconstruction here is {found}."))
+    return text.format(when=w.label, when_state=w.describe(when_s), character=c.label,
+                       state=c.describe(x.state), found=c.describe(x.found))
 
 
 def _reconstruction(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
@@ -445,16 +492,18 @@ def defining_traits(atlas: Atlas, results: Results, links: Links, v: int, root: 
         c = discrete[j]
         found[j] = {"label": c.label, "href": root + links.characters[c.id],
                     "change": f"{c.describe(c.symbols[a])} → {c.describe(c.symbols[b])}",
-                    "evidence": "parsimony: unambiguous"}
+                    "evidence": atlas.i18n.gettext("parsimony: unambiguous")}
     if results.changes is not None:
         for c in discrete:
             gain = float(results.changes.gains[v, c.column])
             if np.isfinite(gain) and gain >= DEFINING_GAIN:
                 entry = found.setdefault(c.column, {
                     "label": c.label, "href": root + links.characters[c.id],
-                    "change": f"gained: {c.describe(c.symbols[1])}", "evidence": ""})
+                    "change": atlas.i18n.gettext("gained: {state}").format(
+                        state=c.describe(c.symbols[1])), "evidence": ""})
                 entry["evidence"] = "; ".join(filter(None, [
-                    entry["evidence"], f"likelihood: {gain:.2f} expected gains"]))
+                    entry["evidence"], atlas.i18n.gettext(
+                        "likelihood: {gain} expected gains").format(gain=f"{gain:.2f}")]))
     return [found[j] for j in sorted(found, key=lambda j: discrete[j].label)]
 
 
@@ -492,13 +541,15 @@ def brief_page(atlas: Atlas, results: Results, links: Links, v: int, notes_by_no
         else:
             groups[c.group]["had"].append(row)
     return PagePlan(path, "brief.html", {
-        "kind": "brief", "title": f"Reconstruction brief: {title}",
+        "kind": "brief",
+        "title": atlas.i18n.gettext("Reconstruction brief: {title}").format(title=title),
         "node": {"title": title, "href": root + links.nodes[nid],
                  "support": fmt(results.summary.support[v]),
                  "members": len(results.members[v])},
         "groups": [{"name": g, **rows} for g, rows in groups.items()],
         "threshold": fmt(UNCERTAIN),
-        "breadcrumbs": [("Lineage tree", root + "tree.html"), (title, root + links.nodes[nid])],
+        "breadcrumbs": [(atlas.i18n.gettext("Lineage tree"), root + "tree.html"),
+                        (title, root + links.nodes[nid])],
     })
 
 
@@ -541,19 +592,21 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
                            "count": len(members),
                            "objects": _member_chips(atlas, links, root, [o.id for o in members])})
     unknown = by_state.get("?", []) + by_state.get("-", [])
-    facts = [("Character id", c.id), ("Group", c.group),
-             ("Kind", "measurement (continuous)" if c.kind == "continuous" else
-              ("ordered states" if c.ordered else "unordered states"))]
+    _ = atlas.i18n.gettext
+    facts = [(_("Character id"), c.id), (_("Group"), c.group),
+             (_("Kind"), _("measurement (continuous)") if c.kind == "continuous" else
+              (_("ordered states") if c.ordered else _("unordered states")))]
     changes = []
     if c.kind == "discrete":
         par = results.parsimony
-        facts.append(("Steps on the summary tree (parsimony)", str(int(par.steps[c.column]))))
-        for name, attr in (("Consistency index (CI)", "ci"), ("Retention index (RI)", "ri")):
+        facts.append((_("Steps on the summary tree (parsimony)"), str(int(par.steps[c.column]))))
+        for name, attr in ((_("Consistency index (CI)"), "ci"),
+                           (_("Retention index (RI)"), "ri")):
             facts.append((name, fmt(float(getattr(results.indices, attr)[c.column]))))
         if results.changes is not None:
             tree = results.tree
             total = results.changes.total[:, c.column]
-            facts.append(("Expected changes on the summary tree (likelihood)",
+            facts.append((_("Expected changes on the summary tree (likelihood)"),
                           fmt(float(total.sum()))))
             for v in np.argsort(-total, kind="stable").tolist():
                 if total[v] < 0.5 or int(tree.parent[v]) < 0:
@@ -573,7 +626,9 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
         "unknown": _member_chips(atlas, links, root, [o.id for o in unknown]),
         "body": render_markdown(c.body, root, links.targets), "image": image,
         "changes": changes, "binary": len(c.symbols) == 2,
-        "breadcrumbs": [("Glossary", root + "glossary.html")],
+        "ledger": ledger.character_ledger(atlas, links, c, root),
+        "breadcrumbs": [(_("Glossary"), root + "glossary.html")],
+        "lang": fallback_lang(atlas, c) if c.body else "",
     })
 
 
@@ -586,12 +641,13 @@ def glossary_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
                "states": [{"symbol": s, "description": d}
                           for s, d in zip(c.symbols, c.descriptions)],
                "steps": "", "ci": ""}
+        row["map"] = links.characters[c.id] + "#distribution" if c.kind == "discrete" else ""
         if c.kind == "discrete":
             row["steps"] = str(int(par.steps[c.column]))
             row["ci"] = fmt(float(ci[c.column])) if ci is not None else ""
         groups[c.group].append(row)
     return PagePlan("glossary.html", "glossary.html", {
-        "kind": "glossary", "title": "Glossary",
+        "kind": "glossary", "title": atlas.i18n.gettext("Glossary"),
         "groups": [{"name": g, "slug": slug(g).lower(), "rows": rows}
                    for g, rows in groups.items()],
         "n_characters": len(atlas.characters),

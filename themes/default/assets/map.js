@@ -14,9 +14,21 @@
  * opens the place page. Colours come from the stylesheet's custom properties, so the dark scheme
  * works, and the map is redrawn when the scheme changes.
  *
+ * A plot div with data-character="ID" (a character page) draws a map of that character's states
+ * instead: the state codes come from data/matrix.js (window.AtlasData.matrix: {objects: [ids],
+ * codes: {id: one letter per object}, polymorphic: {id: {index: [states]}}}, see
+ * atlas/site/statemaps.py), the categories and their words from the radio buttons of the
+ * page's fieldset.state-switch (value "" for all states, "0", "1", ... "?" or "-"), which the
+ * script shows and listens to. Each category has its own colour and marker shape and a legend
+ * entry; a place where several states were recorded gets one marker per state, set slightly
+ * apart around it, each with its own count. Choosing one state shows its map alone.
+ * A data-outline attribute ("lat,lon lat,lon ...": a clade's convex hull) is drawn as a dashed
+ * outline (closed for three or more vertices, a line for two).
+ *
  * Interface words can be translated by the template through data attributes on the plot div:
  * data-text-object ("object"), data-text-objects ("objects"), data-text-none ("No objects"),
- * data-text-more ("more"), data-text-generalised ("Location generalised").
+ * data-text-more ("more"), data-text-generalised ("Location generalised"), data-text-outline
+ * ("Range outline").
  *
  * No globals are created. If plotly, the outlines or the places are missing, nothing is drawn,
  * the empty box is hidden (class plot-unavailable) and the page's text equivalent stays.
@@ -86,6 +98,7 @@
       none: d.textNone || "No objects",
       more: d.textMore || "more",
       generalised: d.textGeneralised || "Location generalised",
+      outline: d.textOutline || "Range outline",
     };
   }
 
@@ -196,6 +209,175 @@
     return rings;
   }
 
+  // ---- States of one character (a character page) ----------------------------------------
+
+  // Okabe & Ito (2008), in the order of assets/tree.js, so a state has one colour on the page;
+  // unknown and not applicable are greys. Shapes tell the states apart without colour.
+  var STATE_COLOURS = ["#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00",
+    "#CC79A7", "#999999"];
+  var STATE_SYMBOLS = ["circle", "square", "diamond", "triangle-up", "pentagon", "hexagon",
+    "star", "triangle-down"];
+  var UNKNOWN = { colour: "#5f5f5f", symbol: "star-diamond" };
+  var INAPPLICABLE = { colour: "#c8c8c8", symbol: "x" };
+  var OFFSET_FRACTION = 0.018; // markers of several states at one place: set apart by this much
+  // of the map's latitude span
+
+  function categoryStyle(key) {
+    if (key === "?") return UNKNOWN;
+    if (key === "-") return INAPPLICABLE;
+    var k = Math.min(parseInt(key, 10) || 0, STATE_COLOURS.length - 1);
+    return { colour: STATE_COLOURS[k], symbol: STATE_SYMBOLS[k] };
+  }
+
+  // The categories offered by the page's radio buttons: [{key, name}], in page order.
+  function stateCategories(control) {
+    var out = [];
+    if (!control) return out;
+    var inputs = control.querySelectorAll('input[type="radio"]');
+    for (var i = 0; i < inputs.length; i++) {
+      var key = inputs[i].value;
+      if (!key) continue;
+      var d = inputs[i].dataset;
+      out.push({ key: key, name: (d.symbol || key) + ": " + (d.description || "") });
+    }
+    return out;
+  }
+
+  // Per place, the number of its objects in each category: [{key: count}].
+  function stateCounts(places, matrix, character) {
+    var index = {};
+    matrix.objects.forEach(function (id, i) {
+      index[id] = i;
+    });
+    var codes = matrix.codes[character];
+    var poly = (matrix.polymorphic && matrix.polymorphic[character]) || {};
+    return places.map(function (p) {
+      var counts = {};
+      (Array.isArray(p.objects) ? p.objects : []).forEach(function (o) {
+        var i = o && index[o.id];
+        if (typeof i !== "number") return;
+        var ch = codes.charAt(i);
+        var keys;
+        if (ch === "*") keys = (poly[i] || []).map(String);
+        else if (ch === "?" || ch === "-") keys = [ch];
+        else keys = [String(parseInt(ch, 36))];
+        keys.forEach(function (k) {
+          counts[k] = (counts[k] || 0) + 1;
+        });
+      });
+      return counts;
+    });
+  }
+
+  function stateHover(place, counts, cats, words) {
+    var lines = ["<b>" + escapeText(place.name || place.id) + "</b>"];
+    if (place.precision === "generalised") {
+      lines.push("<i>" + escapeText(words.generalised) + "</i>");
+    }
+    cats.forEach(function (c) {
+      var n = counts[c.key];
+      if (!n) return;
+      lines.push(escapeText(c.name) + ": " + n + " " + escapeText(n === 1 ? words.object
+        : words.objects));
+    });
+    return lines.join("<br>");
+  }
+
+  // One trace per category shown; with all shown, markers of one place are set around it.
+  function stateTraces(places, state, ranges, colours, words, font) {
+    var shown = state.cats.filter(function (c) {
+      return !state.shown || c.key === state.shown;
+    });
+    var spread = state.shown ? 0 : (ranges.lat[1] - ranges.lat[0]) * OFFSET_FRACTION;
+    var k = lonPerLatScale((((ranges.lat[0] + ranges.lat[1]) / 2) * Math.PI) / 180);
+    var traces = shown.map(function (c) {
+      var style = categoryStyle(c.key);
+      var lat = [], lon = [], size = [], text = [], hover = [], links = [], symbol = [];
+      var generalisedAt = [];
+      places.forEach(function (p, i) {
+        var counts = state.counts[i];
+        var n = counts[c.key];
+        if (!n) return;
+        var here = state.cats.filter(function (d) {
+          return counts[d.key];
+        });
+        var dy = 0, dx = 0;
+        if (spread && here.length > 1) {
+          var angle = (2 * Math.PI * here.indexOf(c)) / here.length;
+          dy = spread * Math.cos(angle);
+          dx = (spread * Math.sin(angle)) / k;
+        }
+        lat.push(p.lat + dy);
+        lon.push(p.lon + dx);
+        size.push(9 + 5 * Math.sqrt(n - 1));
+        text.push(n > 1 ? String(n) : "");
+        hover.push(stateHover(p, counts, state.cats, words));
+        links.push(siteHref(p.href));
+        generalisedAt.push(p.precision === "generalised");
+        symbol.push(p.precision === "generalised" ? style.symbol + "-open" : style.symbol);
+      });
+      return {
+        type: "scattergeo",
+        mode: "markers+text",
+        name: c.name,
+        lat: lat,
+        lon: lon,
+        text: text,
+        textposition: "top right",
+        textfont: { family: font, size: 12, color: colours.fg },
+        hovertext: hover,
+        hoverinfo: "text",
+        customdata: links,
+        marker: {
+          size: size,
+          sizemode: "diameter",
+          symbol: symbol,
+          color: style.colour,
+          opacity: 0.95,
+          line: {
+            width: generalisedAt.map(function (g) {
+              return g ? 3 : 1.25;
+            }),
+            color: colours.markerLine,
+          },
+        },
+        showlegend: true,
+      };
+    });
+    return traces.filter(function (t) {
+      return t.lat.length > 0; // a state whose objects are all off the map draws nothing
+    });
+  }
+
+  // "lat,lon lat,lon ..." as [[lat, lon]], dropping anything that is not a coordinate.
+  function parseOutline(text) {
+    return String(text || "")
+      .split(/\s+/)
+      .map(function (pair) {
+        var v = pair.split(",").map(Number);
+        return v.length === 2 && isCoordinate(v[0], 90) && isCoordinate(v[1], 180) ? v : null;
+      })
+      .filter(Boolean);
+  }
+
+  function outlineTrace(outline, colours, words) {
+    var ring = outline.length >= 3 ? outline.concat([outline[0]]) : outline;
+    return {
+      type: "scattergeo",
+      mode: "lines",
+      name: words.outline,
+      lat: ring.map(function (v) {
+        return v[0];
+      }),
+      lon: ring.map(function (v) {
+        return v[1];
+      }),
+      line: { color: colours.fg, width: 2, dash: "dash" },
+      hoverinfo: "skip",
+      showlegend: false,
+    };
+  }
+
   // Colours for the screen come from the stylesheet (so the dark scheme works); on paper the
   // map is drawn in greys on white, with the clade colours kept.
   function screenColours() {
@@ -236,7 +418,8 @@
     };
   }
 
-  function buildFigure(places, basemap, box, colours, words) {
+  // view: {outline: [[lat, lon]], state: null | {cats, counts, shown}}
+  function buildFigure(places, basemap, box, colours, words, view) {
     var font = getComputedStyle(document.body).fontFamily || "sans-serif";
     var data = [];
 
@@ -257,6 +440,13 @@
         showlegend: false,
       });
     });
+
+    if (view.outline.length >= 2) data.push(outlineTrace(view.outline, colours, words));
+    var ranges = fittedRanges(places, box.width, box.height);
+    if (view.state) {
+      data = data.concat(stateTraces(places, view.state, ranges, colours, words, font));
+      return { data: data, layout: mapLayout(ranges, colours, font, true) };
+    }
 
     var counts = places.map(function (p) {
       return Array.isArray(p.objects) ? p.objects.length : 0;
@@ -312,8 +502,11 @@
       showlegend: false,
     });
 
-    var ranges = fittedRanges(places, box.width, box.height);
-    var layout = {
+    return { data: data, layout: mapLayout(ranges, colours, font, false) };
+  }
+
+  function mapLayout(ranges, colours, font, legend) {
+    return {
       font: { family: font, color: colours.fg, size: 13 },
       paper_bgcolor: "rgba(0,0,0,0)",
       margin: { l: 0, r: 0, t: 0, b: 0 },
@@ -326,7 +519,17 @@
       },
       dragmode: "pan",
       modebar: { bgcolor: "rgba(0,0,0,0)", color: colours.muted, activecolor: colours.fg },
-      showlegend: false,
+      showlegend: legend,
+      legend: {
+        orientation: "h",
+        x: 0,
+        y: 0,
+        yanchor: "bottom",
+        bgcolor: colours.bg,
+        bordercolor: colours.border,
+        borderwidth: 1,
+        font: { family: font, color: colours.fg, size: 12 },
+      },
       geo: {
         resolution: 110,
         fitbounds: false,
@@ -349,7 +552,6 @@
         bgcolor: "rgba(0,0,0,0)",
       },
     };
-    return { data: data, layout: layout };
   }
 
   var CONFIG = {
@@ -402,6 +604,30 @@
       return;
     }
     var basemap = window.AtlasData.basemap || null;
+    var view = { outline: parseOutline(div.dataset.outline), state: null };
+    var figure = div.closest("figure");
+    var control = figure && figure.querySelector(".state-switch");
+    var character = div.dataset.character || "";
+    if (character) {
+      var matrix = window.AtlasData.matrix;
+      var cats = stateCategories(control);
+      if (!matrix || !Array.isArray(matrix.objects) || !matrix.codes ||
+          typeof matrix.codes[character] !== "string" || cats.length === 0) {
+        markUnavailable(div);
+        return;
+      }
+      view.state = { cats: cats, counts: stateCounts(places, matrix, character), shown: "" };
+      places = places.filter(function (p, i) {
+        return Object.keys(view.state.counts[i]).length > 0;
+      });
+      view.state.counts = view.state.counts.filter(function (c) {
+        return Object.keys(c).length > 0;
+      });
+      if (places.length === 0) {
+        markUnavailable(div);
+        return;
+      }
+    }
 
     // mode: "first" (newPlot), "screen" (redraw after a resize or a change of scheme) or
     // "paper" (fixed size, greys on white, for printing).
@@ -411,7 +637,7 @@
         ? { width: PAPER_WIDTH_PX, height: PAPER_HEIGHT_PX }
         : { width: div.clientWidth, height: div.clientHeight };
       var colours = paper ? paperColours() : screenColours();
-      var fig = buildFigure(places, basemap, box, colours, interfaceWords(div));
+      var fig = buildFigure(places, basemap, box, colours, interfaceWords(div), view);
       if (paper) {
         fig.layout.width = PAPER_WIDTH_PX;
         fig.layout.height = PAPER_HEIGHT_PX;
@@ -428,8 +654,16 @@
     }
     Promise.resolve(drawing).then(
       function () {
-        var figure = div.closest("figure");
         if (figure) figure.classList.add("has-plot");
+        if (view.state && control) {
+          control.hidden = false;
+          control.addEventListener("change", function (event) {
+            var input = event.target;
+            if (!input || input.name !== "state-shown") return;
+            view.state.shown = input.value;
+            render("screen");
+          });
+        }
         keepOutOfTabOrder(div);
         div.on("plotly_afterplot", function () {
           keepOutOfTabOrder(div);

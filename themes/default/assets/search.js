@@ -14,6 +14,30 @@
   var MAX_SHOWN = 100;
   var KINDS = {object: "Object", character: "Character", place: "Place", page: "Page",
                clade: "Clade"};
+  // The page may give these texts in its language (data-text-* on #search-form); {total},
+  // {count}, {query} and {max} are filled in here.
+  var TEXTS = {prompt: "Type a word to search {total} entries.",
+               none: "No results for \u201c{query}\u201d.",
+               one: "1 result for \u201c{query}\u201d.",
+               many: "{count} results for \u201c{query}\u201d.",
+               more: "Showing the first {max}."};
+
+  function say(key, values) {
+    return TEXTS[key].replace(/\{(\w+)\}/g, function (all, name) {
+      return name in values ? String(values[name]) : all;
+    });
+  }
+
+  function readTexts(form) {
+    Object.keys(TEXTS).forEach(function (key) {
+      var given = form.getAttribute("data-text-" + key);
+      if (given) { TEXTS[key] = given; }
+    });
+    try {
+      var kinds = JSON.parse(form.getAttribute("data-text-kinds") || "{}");
+      Object.keys(kinds).forEach(function (k) { KINDS[k] = kinds[k]; });
+    } catch (e) { /* keep the English names */ }
+  }
 
   function normalise(text) {
     return text.normalize("NFD").replace(/\p{M}/gu, "").toLowerCase();
@@ -73,7 +97,7 @@
   function show(list, status, root, query, hits, total) {
     list.textContent = "";
     if (!tokens(query).length) {
-      status.textContent = "Type a word to search " + total + " entries.";
+      status.textContent = say("prompt", {total: total});
       return;
     }
     hits.slice(0, MAX_SHOWN).forEach(function (e) {
@@ -97,9 +121,8 @@
       list.appendChild(li);
     });
     var n = hits.length;
-    var text = n === 0 ? "No results for \u201c" + query + "\u201d." :
-      n + (n === 1 ? " result" : " results") + " for \u201c" + query + "\u201d.";
-    if (n > MAX_SHOWN) { text += " Showing the first " + MAX_SHOWN + "."; }
+    var text = say(n === 0 ? "none" : n === 1 ? "one" : "many", {count: n, query: query});
+    if (n > MAX_SHOWN) { text += " " + say("more", {max: MAX_SHOWN}); }
     status.textContent = text;
   }
 
@@ -111,6 +134,7 @@
     var status = document.getElementById("search-status");
     var button = document.getElementById("search-go");
     if (!data || !form || !input || !list || !status) { return; }
+    readTexts(form);
     var root = document.body.getAttribute("data-root") || "";
     var prepared = prepare(data.entries);
     var timer = null;
