@@ -48,10 +48,11 @@ def click_point(tab, plot_id: str, pattern: str) -> str:
     chosen = [p for p in points if re.fullmatch(pattern, p["href"])]
     assert chosen, f"no marker in #{plot_id} links to {pattern}: {points}"
     point = chosen[len(chosen) // 2]
-    x, y = tab.page.evaluate(_CENTRE, [plot_id, point["trace"], point["i"]])
     # plotly picks the hovered point before the click; on a loaded machine that can take a
-    # while, so the hover and click are tried again (a real failure fails all three times)
+    # while, so the hover and click are tried again (a real failure fails all three times).
+    # The marker is found afresh each time, in case a late resize has moved the drawing.
     for attempt in range(3):
+        x, y = tab.page.evaluate(_CENTRE, [plot_id, point["trace"], point["i"]])
         tab.page.mouse.move(x - 1, y)
         tab.page.mouse.move(x, y)
         tab.page.wait_for_timeout(150 * (attempt + 1))
