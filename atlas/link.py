@@ -315,6 +315,8 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
             ordered=bool(meta.get("ordered", row.ordered if row else False)), kind=kind,
             body=note.body if note else "", image=image, column=column,
             source=f"{note.file}" if note else (f"{row.file}:{row.line}" if row else ""),
+            translations=_character_translations(cid, note, row, symbols, problems),
+            file=note.file if note else (row.file if row else ""),
         ))
 
     masks = np.zeros((len(taxa), n_disc), dtype=np.uint32)
@@ -373,6 +375,39 @@ def _check_symbols(matrix, characters, problems: Problems) -> None:
                            f"object {name!r}: cell {cell!r} of character {c.id!r} is not a state "
                            "symbol (use 0-9 or letters, ? unknown, - not applicable, 0/1 "
                            "polymorphic)")
+
+
+def _character_translations(cid: str, note: Note | None, row, symbols: tuple[str, ...],
+                            problems: Problems) -> dict[str, dict]:
+    """Per language: the translated label, one description per state symbol (``""`` where
+    the translation gives none) and Markdown body (``""`` when it has none), from
+    ``characters/<id>.<lang>.md`` (front matter ``label`` and ``states``, then the body) and
+    the table's ``label@<lang>`` and ``states@<lang>`` columns; a note's translation wins
+    over the table's. A translated state the character does not have is an error."""
+    notes = note.translations if note is not None else {}
+    rows = row.translations if row is not None else {}
+    out: dict[str, dict] = {}
+    for lang in sorted(set(notes) | set(rows)):
+        t, r = notes.get(lang), rows.get(lang, {})
+        meta = t.meta if t is not None else {}
+        states = {str(k): str(v) for k, v in r.get("states", {}).items()}
+        where = (row.file, row.line) if row is not None else ("", None)
+        if t is not None and "states" in meta:
+            if isinstance(meta["states"], dict):
+                states.update({str(k): str(v) for k, v in meta["states"].items()})
+                where = (t.file, t.line("states"))
+            else:
+                problems.error(t.file, t.line("states"),
+                               "states must map each state symbol to its description")
+        for symbol in states:
+            if symbol not in symbols:
+                problems.error(*where, f"the {lang} translation of character {cid!r} describes "
+                               f"state {symbol!r}, which it does not have",
+                               "its states: " + (", ".join(symbols) or "none (continuous)"))
+        body = t.body if t is not None and t.body.strip() else ""
+        out[lang] = {"label": str(meta.get("label") or r.get("label") or ""),
+                     "descriptions": tuple(states.get(s, "") for s in symbols), "body": body}
+    return out
 
 
 def _declared_states(note: Note | None, row, problems: Problems) -> dict[str, str]:

@@ -44,6 +44,19 @@ class Character:
     image: Image | None = None
     column: int = -1  # index into the discrete (or continuous) matrix arrays
     source: str = ""  # file:line where it is described
+    # lang -> {"label", "descriptions" (one per symbol, "" where not translated), "body"}:
+    # from characters/<id>.<lang>.md or the table's label@<lang> and states@<lang> columns.
+    translations: dict[str, dict] = field(default_factory=dict)
+    # Set for one language's rendering (atlas.site.languages.localise) where a part is shown
+    # untranslated: the language it is written in, for a ``lang`` attribute ("" otherwise).
+    fallback_lang: str = ""  # of the label
+    body_lang: str = ""  # of the body
+    state_langs: tuple[str, ...] = ()  # of each description ((): all translated or default)
+    file: str = ""  # the note's file (or the table's), for the untranslated-content report
+
+    def state_lang(self, k: int) -> str:
+        """The ``lang`` attribute the description of state ``k`` needs ("" for none)."""
+        return self.state_langs[k] if k < len(self.state_langs) else ""
 
     def describe(self, symbol: str) -> str:
         if symbol in self.symbols:

@@ -37,7 +37,7 @@ def main() -> None:
     from atlas import __version__
     from atlas.analysis.results import analyse
     from atlas.build import load
-    from atlas.i18n import translator
+    from atlas.i18n import number_filters, translator
     from atlas.site import downloads
     from atlas.site.languages import language_links, localise
     from atlas.site.plan import plan_site
@@ -60,6 +60,7 @@ def main() -> None:
         autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True,
         lstrip_blocks=True, keep_trailing_newline=True, extensions=["jinja2.ext.i18n"])
     bare.install_null_translations(newstyle=True)
+    bare.filters.update(number_filters(lang))  # the templates' number filters
     contexts = []
     for page in plan.pages:
         root = root_of(page.path)

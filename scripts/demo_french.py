@@ -1,10 +1,11 @@
 """The French side of the demo atlas (invented, like the rest of it): translated notes of a few
-objects, of every clade, of the about page, and the French names of the places.
+objects, of every clade, of a few characters (label, state descriptions and note), of the about
+page, and the French names of the places.
 
 Used by make_demo.py; the English texts these translate are the notes that script writes (the
 object notes come from the simulated traits, which are seeded, so they never change). The
-acknowledgements page and most object notes stay untranslated on purpose: the French pages
-show them in English, marked ``lang="en"``, and ``atlas check`` lists them.
+acknowledgements page, most object notes and most characters stay untranslated on purpose: the
+French pages show them in English, marked ``lang="en"``, and ``atlas check`` lists them.
 """
 
 from __future__ import annotations
@@ -56,6 +57,53 @@ OBJECTS = {
         "dessus est orné de rayons autour du bassin et de pastilles d’argile appliquées. Les "
         "tailleurs de pierre de Hrellun façonnaient des lampes-coupelles ouvertes dans la "
         "pierre grise tendre de Caldrith.",
+    ),
+}
+
+# Character id -> (label, state descriptions in symbol order, note): the characters with a
+# drawing in the demo, and the size classes.
+CHARACTERS = {
+    "b01": (
+        "Contour du corps en plan",
+        ("rond", "piriforme", "naviforme"),
+        "Relevé sur le réservoir vu de dessus, bec exclu. Un corps plus de 1,4 fois plus long "
+        "que large, aux extrémités pointues, compte comme naviforme.",
+    ),
+    "b02": (
+        "Classe de taille du corps",
+        ("petit (moins de 8 cm)", "moyen (8 à 12 cm)", "grand (plus de 12 cm)"),
+        "Mesurée selon le grand axe, bec compris. Les classes sont ordonnées : passer de petit "
+        "à grand suppose de passer par moyen.",
+    ),
+    "d01": (
+        "Rayons autour du trou de remplissage",
+        ("absents", "présents"),
+        "Lignes incisées ou imprimées qui rayonnent depuis le trou de remplissage ; on les "
+        "compte à partir de trois.",
+    ),
+    "d05": (
+        "Couleur de l’engobe",
+        ("aucun engobe", "rouge", "blanc", "noir"),
+        "La couleur d’un engobe qui couvre la plus grande partie de la surface, lue à la lumière "
+        "du jour contre un nuancier.",
+    ),
+    "f05": (
+        "Façonnage",
+        ("à la main", "au tour"),
+        "Les lampes tournées montrent des cannelures en spirale à l’intérieur du réservoir ; les "
+        "lampes façonnées à la main montrent les jointures des colombins.",
+    ),
+    "h02": (
+        "Type d’anse",
+        ("annulaire", "tenon", "en ruban", "languette"),
+        "Les anses annulaires et en ruban sont tirées d’une bande d’argile à part ; les tenons "
+        "et les languettes sont pincés dans le corps.",
+    ),
+    "n03": (
+        "Forme de l’extrémité du bec",
+        ("arrondie", "spatulée", "pincée"),
+        "Les extrémités pincées étaient serrées entre le pouce et l’index ; les extrémités "
+        "spatulées s’élargissent au bout.",
     ),
 }
 
@@ -141,15 +189,28 @@ def _typeset(text: str) -> str:
     return text.replace(" ;", NBSP + ";").replace(" :", NBSP + ":")
 
 
+def _quoted(text: str) -> str:
+    return '"' + _typeset(text).replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
 def note(title: str, body: str) -> str:
     """A translation note: front matter with the title, then the body."""
-    escaped = _typeset(title).replace("\\", "\\\\").replace('"', '\\"')
-    return f'---\ntitle: "{escaped}"\n---\n\n{_typeset(body)}\n'
+    return f"---\ntitle: {_quoted(title)}\n---\n\n{_typeset(body)}\n"
+
+
+def character_note(label: str, states: tuple[str, ...], body: str) -> str:
+    """A character's translation: front matter with the label and the state descriptions by
+    symbol (the demo's symbols are 0, 1, 2, ...), then the note."""
+    lines = [f"label: {_quoted(label)}", "states:"]
+    lines += [f'  "{k}": {_quoted(text)}' for k, text in enumerate(states)]
+    return "---\n" + "\n".join(lines) + f"\n---\n\n{_typeset(body)}\n"
 
 
 def files() -> dict[str, str]:
     """Every French file of the demo, as relative path -> text."""
     out = {f"objects/{oid}.fr.md": note(*text) for oid, text in OBJECTS.items()}
     out.update({f"clades/{name}.fr.md": note(*text) for name, text in CLADES.items()})
+    out.update({f"characters/{cid}.fr.md": character_note(*text)
+                for cid, text in CHARACTERS.items()})
     out["pages/about.fr.md"] = _typeset(ABOUT)
     return out

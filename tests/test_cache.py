@@ -88,6 +88,14 @@ def test_cached_rebuilds_match_a_clean_build_after_every_kind_of_change(source, 
     # the reference itself moved: the last cached build shows the last edits
     page = (tmp_path / "cached-image" / "pages" / "about.html").read_text("utf-8")
     assert "made up" in page
+    # a second language, then an edited translation of a character (invented French)
+    _edit(source, "atlas.toml", 'languages = ["en"]', 'languages = ["en", "fr"]')
+    write_atlas(source, {"characters/hook.fr.md": '---\nlabel: Manche à crochet\n---\n'})
+    _same_as_clean(source, tmp_path, "language")
+    _edit(source, "characters/hook.fr.md", "Manche à crochet", "Manche crochu")
+    _same_as_clean(source, tmp_path, "translation")
+    page = (tmp_path / "cached-translation" / "fr" / "characters" / "hook.html").read_text("utf-8")
+    assert "<h1>Manche crochu</h1>" in page
 
 
 def test_a_corrupt_or_deleted_cache_is_rebuilt(source, tmp_path):

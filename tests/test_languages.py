@@ -9,6 +9,7 @@ spoons), given a second language in the test.
 from __future__ import annotations
 
 import re
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import pytest
@@ -121,6 +122,13 @@ def two_language_atlas(folder: Path, second: str = "fr", restricted: bool = Fals
     files[f"objects/spoon-a.{second}.md"] = (
         "---\ntitle: Cuillère à manche crochu\n---\nUne cuillère à long manche terminé par un "
         "crochet pour la suspendre. **Tout, dans cet objet, est inventé.**\n")
+    # A character translated in full, one in part (label and one state, no note), the other
+    # two not at all (invented French, as the spoons are invented).
+    files[f"characters/hook.{second}.md"] = (
+        '---\nlabel: Manche à crochet\nstates:\n  "0": absent\n  "1": présent\n---\n'
+        "Codé « - » (sans objet) quand la cuillère n’a pas de long manche.\n")
+    files[f"characters/bowl.{second}.md"] = (
+        '---\nlabel: Profondeur du cuilleron\nstates:\n  "0": peu profond\n---\n')
     if restricted:  # a restricted object whose translation must stay out as well
         files["objects/spoon-e.md"] = files["objects/spoon-e.md"].replace(
             "access: public", "access: restricted")
@@ -239,6 +247,10 @@ def test_check_lists_what_is_not_translated(tmp_path):
     assert "spoon-a.md" not in out.split("object notes without")[1].split("\n")[0]
     assert "places without a name@de column value" in out and "brinmoor, old-fold" in out
     assert "1 free page without a de translation" in out and "about.md" in out
+    assert ("characters: warning: 2 characters without a de translation (<id>.de.md, or "
+            "label@de and states@de columns), shown in en: handle, notch") in out
+    assert ("1 character with an incomplete de translation (the rest shows in en): bowl "
+            "(state 1, state 2, note)") in out
 
 
 def test_check_is_quiet_about_a_complete_language(tmp_path):
@@ -247,3 +259,104 @@ def test_check_is_quiet_about_a_complete_language(tmp_path):
     assert result.exit_code == 0
     assert "interface strings have no fr translation" not in result.output
     assert "no interface catalogue" not in result.output
+
+
+# --- characters in another language ----------------------------------------------------------
+
+def test_translated_character_replaces_label_states_and_note(two_languages):
+    page = read(two_languages, "fr/characters/hook.html")
+    assert "<h1>Manche à crochet</h1>" in page  # in the page's language: no lang attribute
+    assert "<h3>1: présent " in page
+    assert re.search(r'<div class="note-body"><p>Codé « - » \(sans objet\)', page)
+    # nothing of the character itself is marked as English (above the distribution map)
+    assert 'lang="en"' not in page.split("<main")[1].split('id="distribution"')[0]
+    english = read(two_languages, "characters/hook.html")
+    assert "<h1>Hooked handle end</h1>" in english and "Manche" not in english
+
+
+def test_untranslated_parts_of_a_character_are_marked_english(two_languages):
+    page = read(two_languages, "fr/characters/bowl.html")
+    assert "<h1>Profondeur du cuilleron</h1>" in page  # translated label
+    assert "<h3>0: peu profond " in page  # translated state
+    assert '<h3>1: <span lang="en">deep</span> ' in page  # the others stay English, marked
+    assert '<div class="note-body" lang="en"><p>Depth of the bowl' in page
+    notch = read(two_languages, "fr/characters/notch.html")
+    assert '<h1 lang="en">Notched rim</h1>' in notch
+    glossary = read(two_languages, "fr/glossary.html")
+    assert re.search(r'<a href="characters/notch\.html" lang="en">Notched rim</a>', glossary)
+    assert '<td lang="en">0 = absent; 1 = present</td>' in glossary  # every state English
+    assert '0 = peu profond; 1 = <span lang="en">deep</span>' in glossary  # some of them
+
+
+def test_translated_characters_reach_the_tree_data_and_the_search(two_languages):
+    site = two_languages
+    assert "Manche à crochet" in read(site, "fr/data/states.js")  # the tree's hover and key
+    assert "Manche à crochet" in read(site, "fr/data/search.js")
+    for path in ("data/states.js", "data/search.js"):
+        assert "Manche" not in read(site, path)
+
+
+def test_character_table_columns_translate_labels_and_states(tmp_path):
+    # Invented: the characters given as a CSV table with label@fr and states@fr columns (the
+    # gazetteer's name@fr pattern); one row leaves them empty, one fills only the label.
+    from atlas.build import load
+    from atlas.site.languages import localise
+
+    files = {k: v for k, v in STARTER.items() if not k.startswith("characters/")}
+    files["atlas.toml"] = files["atlas.toml"].replace(
+        'languages = ["en"]', 'languages = ["en", "fr"]').replace(
+        'gazetteer = "places.csv"', 'gazetteer = "places.csv"\ncharacters = "characters.csv"')
+    files["characters.csv"] = (
+        "id,label,group,states,label@fr,states@fr\n"
+        "bowl,Bowl depth,Bowl,0=shallow;1=deep;2=very deep,Profondeur du cuilleron,"
+        "0=peu profond;1=profond;2=très profond\n"
+        "handle,Long handle,Handle,0=absent;1=present,,\n"
+        "hook,Hooked handle end,Handle,0=absent;1=present,Manche à crochet,\n"
+        "notch,Notched rim,Bowl,0=absent;1=present,,\n")
+    atlas = load(write_atlas(tmp_path / "atlas", files))
+    french = {c.id: c for c in localise(atlas, "fr", translator("fr")).characters}
+    assert (french["bowl"].label, french["bowl"].descriptions) == (
+        "Profondeur du cuilleron", ("peu profond", "profond", "très profond"))
+    assert french["bowl"].fallback_lang == "" and french["bowl"].state_langs == ("", "", "")
+    assert french["hook"].label == "Manche à crochet" and french["hook"].fallback_lang == ""
+    assert french["hook"].descriptions == ("absent", "present")
+    assert french["hook"].state_langs == ("en", "en")
+    assert french["handle"].label == "Long handle" and french["handle"].fallback_lang == "en"
+    english = {c.id: c for c in localise(atlas, "en", translator("en")).characters}
+    assert english["bowl"].label == "Bowl depth" and english["bowl"].fallback_lang == ""
+
+
+def test_a_translated_state_the_character_lacks_is_an_error(tmp_path):
+    files = dict(STARTER)
+    files["atlas.toml"] = files["atlas.toml"].replace('languages = ["en"]',
+                                                      'languages = ["en", "fr"]')
+    files["characters/hook.fr.md"] = ('---\nlabel: Manche à crochet\nstates:\n  "0": absent\n'
+                                      '  "7": en trop\n---\n')
+    result = CliRunner().invoke(main, ["check", str(write_atlas(tmp_path / "atlas", files))],
+                                catch_exceptions=False)
+    assert result.exit_code == 1
+    assert ("characters/hook.fr.md:3: the fr translation of character 'hook' describes state "
+            "'7', which it does not have") in result.output
+    assert "Traceback" not in result.output
+
+
+def test_figures_are_written_in_each_language(two_languages):
+    # The methods page's figures and the map layers carry words (title, description, axes,
+    # bar titles): each language has its own copy, and the pages link to their own.
+    site = two_languages
+    svg = "{http://www.w3.org/2000/svg}"
+    french = ET.fromstring(read(site, "fr/figures/support.svg"))
+    english = ET.fromstring(read(site, "figures/support.svg"))
+    assert french.find(f"{svg}title").text == "Soutien des clades de l’arbre de synthèse"
+    assert english.find(f"{svg}title").text == "Clade support in the summary tree"
+    assert "0 à 0,1\u00a0: " in french.find(f"{svg}desc").text
+    labels = [t.text for t in french.iter(f"{svg}text")]
+    assert "Clades" in labels and "0,5" in labels and "0.5" not in labels
+    strip = ET.fromstring(read(site, "fr/figures/retention.svg"))
+    assert "caractère" in strip.find(f"{svg}desc").text
+    layer = ET.fromstring(read(site, "fr/figures/characters/hook-1.svg"))
+    assert layer.find(f"{svg}title").text == "Manche à crochet\u00a0: 1 (présent)"
+    assert "La zone d’étude de" in read(site, "fr/figures/study-area.svg")
+    assert 'src="figures/support.svg"' in read(site, "fr/methods.html")  # fr/figures/
+    assert "(fiche des traits)" in read(site, "fr/nodes/" + re.search(
+        r'href="\.\./nodes/(n-[0-9a-f]+\.html)"', read(site, "fr/objects/spoon-a.html")).group(1))

@@ -13,6 +13,7 @@ from html import escape
 import numpy as np
 
 from ..analysis.tree import Tree
+from ..i18n import Translator
 
 
 @dataclass(frozen=True)
@@ -85,12 +86,15 @@ def tree_layout(tree: Tree, ids: list[str], labels: list[str], hrefs: list[str],
 
 def tree_svg(layout: list[LayoutNode], root: str, *, highlight: set[int] | None = None,
              width: int = 760, row: int = 18, title: str = "Lineage tree",
-             standalone: bool = False) -> str:
+             standalone: bool = False, tr: Translator | None = None) -> str:
     """A static SVG of the tree with links to object pages and trait sheets.
 
     Tips and nodes are ``<a>`` elements (keyboard-focusable in browsers that show SVG links),
     support values stand beside internal nodes, highlighted nodes are drawn in the accent class.
+    The words and numbers it adds (a trait sheet link's name, the supports) are in ``tr``'s
+    language (English without one).
     """
+    tr = tr or Translator()
     highlight = highlight or set()
     tips = [n for n in layout if n.kind == "tip"]
     label_room = 12 + 7 * max((len(n.label) for n in tips), default=4)
@@ -133,11 +137,12 @@ def tree_svg(layout: list[LayoutNode], root: str, *, highlight: set[int] | None 
             # The support number stands beside the link, so the link's name is its label alone.
             support = "" if node.support is None or node.support >= 0.9995 else \
                 f'<text x="{x - 4:.1f}" y="{y - 4:.1f}" font-size="10" text-anchor="end">' \
-                f"{node.support:.2f}</text>"
+                f"{tr.number(node.support, 2)}</text>"
             mark = f'<rect x="{x - 3:.1f}" y="{y - 3:.1f}" width="6" height="6"{cls}/>'
             parts.append(support)
         if node.href and not node.withheld:
-            name = node.label if node.kind == "tip" else f"{node.label} (trait sheet)"
+            name = node.label if node.kind == "tip" else \
+                tr.gettext("{title} (trait sheet)").format(title=node.label)
             parts.append(f'<a href="{escape(root + node.href)}" aria-label="{escape(name)}">'
                          f"{mark}</a>")
         else:

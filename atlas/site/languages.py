@@ -2,10 +2,11 @@
 
 The analysis runs once. For each language of ``atlas.toml`` (``languages = ["en", "fr"]``, the
 first the default) the atlas is *localised* (:func:`localise`: translated object notes, clade
-notes, free pages and place names replace the default text where they exist, and the
-language's interface catalogue rides along as ``atlas.i18n``), then planned and rendered as
-usual. The default language is written at the site root; every other language under
-``<lang>/`` with the same page paths (``fr/objects/lamp-03.html``).
+notes, free pages, character labels, state descriptions and notes, and place names replace the
+default text where they exist, and the language's interface catalogue rides along as
+``atlas.i18n``, which also writes the numbers), then planned and rendered as usual. The
+default language is written at the site root; every other language under ``<lang>/`` with the
+same page paths (``fr/objects/lamp-03.html``).
 
 Files are shared where they can be: the theme's ``assets/``, plotly.js, images and every data
 script or download that comes out byte for byte the same in a language as in the default one
@@ -57,8 +58,11 @@ def localise(atlas: Atlas, lang: str, tr: Translator) -> Atlas:
 
     An object note, clade note or free page without a translation keeps its default-language
     text and is marked with ``fallback_lang`` (the page gives its container a ``lang``
-    attribute); a place without a ``name@<lang>`` keeps its name. Withheld objects have no
-    translations (the link stage kept none), so nothing withheld comes back here.
+    attribute); a place without a ``name@<lang>`` keeps its name. A character takes its
+    translated label, state descriptions and body where its translation gives them, and each
+    part it lacks keeps the default text, marked (``fallback_lang`` for the label,
+    ``body_lang``, ``state_langs``). Withheld objects have no translations (the link stage
+    kept none), so nothing withheld comes back here.
     """
     default = atlas.config.languages[0]
     if lang == default:
@@ -70,11 +74,22 @@ def localise(atlas: Atlas, lang: str, tr: Translator) -> Atlas:
             return replace(item, title=t["title"], body=t["body"])
         return replace(item, fallback_lang=default)
 
+    def character(c):
+        t = c.translations.get(lang, {})
+        given = t.get("descriptions", ()) or ("",) * len(c.descriptions)
+        return replace(
+            c, label=t.get("label") or c.label, body=t.get("body") or c.body,
+            descriptions=tuple(d or base for d, base in zip(given, c.descriptions)),
+            fallback_lang="" if t.get("label") else default,
+            body_lang="" if t.get("body") or not c.body.strip() else default,
+            state_langs=tuple("" if d else default for d in given))
+
     objects = {oid: version(o) if o.has_note and not o.withheld else o
                for oid, o in atlas.objects.items()}
     places = {pid: replace(p, name=p.names[lang]) if p.names.get(lang) else p
               for pid, p in atlas.places.items()}
     return replace(atlas, objects=objects, places=places, i18n=tr,
+                   characters=tuple(character(c) for c in atlas.characters),
                    clade_notes=tuple(version(n) for n in atlas.clade_notes),
                    pages=tuple(version(p) for p in atlas.pages))
 
@@ -198,8 +213,10 @@ def _count(n: int, one: str, many: str) -> str:
 def untranslated_report(atlas: Atlas, base=None) -> list[Problem]:
     """Warnings, for each language but the default, about what a reader would see untranslated:
     interface strings the language's catalogue lacks (or that it has no catalogue), object
-    notes, clade notes and free pages without ``<name>.<lang>.md``, places without
-    ``name@<lang>``. Each names the files concerned and counts them."""
+    notes, clade notes and free pages without ``<name>.<lang>.md``, characters without a
+    translation (``characters/<id>.<lang>.md`` or the table's ``label@<lang>`` and
+    ``states@<lang>`` columns) or with one that leaves a part out, places without
+    ``name@<lang>``. Each names the files or ids concerned and counts them."""
     config = atlas.config
     out: list[Problem] = []
     template = (base or locale_dir()) / "atlas.pot"
@@ -233,10 +250,42 @@ def untranslated_report(atlas: Atlas, base=None) -> list[Problem]:
                                    f"{lang} translation (<name>.{lang}.md), shown in "
                                    f"{config.languages[0]}: " + _listing(names), "",
                                    "warning"))
+        out += _untranslated_characters(atlas, lang)
         places = sorted(p.id for p in atlas.places.values() if not p.names.get(lang))
         if places:
             out.append(Problem(config.sources["gazetteer"], None,
                                f"{_count(len(places), 'place', 'places')} without a name@{lang} "
                                "column value (the default name shows): " + _listing(places),
                                "", "warning"))
+    return out
+
+
+def _untranslated_characters(atlas: Atlas, lang: str) -> list[Problem]:
+    """Characters a reader of ``lang`` sees in the default language: without any translation,
+    or with a translation that lacks the label, a state's description or the body (when the
+    character has a note)."""
+    folder = atlas.config.sources["characters"]
+    default = atlas.config.languages[0]
+    missing = [c.id for c in atlas.characters if lang not in c.translations]
+    partial = []
+    for c in atlas.characters:
+        t = c.translations.get(lang)
+        if t is None:
+            continue
+        lacks = ([] if t["label"] else ["label"]) + [
+            f"state {s}" for s, d in zip(c.symbols, t["descriptions"]) if not d]
+        if c.body.strip() and not t["body"]:
+            lacks.append("note")
+        if lacks:
+            partial.append(f"{c.id} ({', '.join(lacks)})")
+    out = []
+    if missing:
+        out.append(Problem(folder, None, f"{_count(len(missing), 'character', 'characters')} "
+                           f"without a {lang} translation (<id>.{lang}.md, or label@{lang} and "
+                           f"states@{lang} columns), shown in {default}: " + _listing(missing),
+                           "", "warning"))
+    if partial:
+        out.append(Problem(folder, None, f"{_count(len(partial), 'character', 'characters')} "
+                           f"with an incomplete {lang} translation (the rest shows in "
+                           f"{default}): " + _listing(partial, 5), "", "warning"))
     return out

@@ -10,6 +10,7 @@ from collections.abc import Callable
 import numpy as np
 
 from ..analysis.results import Results
+from ..i18n import N_
 from ..model import Atlas
 from .figures import LayoutNode
 from .markdown import plain_text, render_markdown
@@ -83,13 +84,16 @@ def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> lis
     return events
 
 
+SUMMARY_METHODS = {"majority": N_("majority-rule consensus"),
+                   "mcc": N_("maximum clade credibility tree"),
+                   "given": N_("summary tree given with the study")}
+
+
 def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
               use_lengths: bool) -> PagePlan:
     summary = results.summary
     _ = atlas.i18n.gettext
-    method = {"majority": _("majority-rule consensus"),
-              "mcc": _("maximum clade credibility tree"),
-              "given": _("summary tree given with the study")}[summary.method]
+    method = _(SUMMARY_METHODS[summary.method])
     internal = [v for v in range(results.tree.n_nodes) if results.tree.tip[v] < 0
                 and v != results.tree.root]
     supports = summary.support[internal] if internal else np.array([])
@@ -185,26 +189,28 @@ def _diagnostics(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
             if len(top) == 8:
                 break
     facts = []
-    _ = atlas.i18n.gettext
+    _, number = atlas.i18n.gettext, atlas.i18n.number
     if diag.delta is not None:
-        quartets = f"{diag.delta.n_quartets:,}"
-        facts += [(_("Mean delta score"), fmt(diag.delta.mean_delta, 3)),
-                  (_("Mean Q-residual"), fmt(diag.delta.mean_q_residual, 4)),
+        quartets = number(diag.delta.n_quartets)
+        facts += [(_("Mean delta score"), number(diag.delta.mean_delta, 3)),
+                  (_("Mean Q-residual"), number(diag.delta.mean_q_residual, 4)),
                   (_("Quartets"), (_("{n} (a seeded sample)") if diag.delta.sampled
                                    else _("{n} (all)")).format(n=quartets))]
     if diag.mantel is not None:
-        facts += [(_("Mantel r, geographic against patristic distance"), fmt(diag.mantel.r, 3)),
+        facts += [(_("Mantel r, geographic against patristic distance"),
+                   number(diag.mantel.r, 3)),
                   (_("Mantel p"), _("{p} ({permutations} permutations, {n} objects with "
-                                    "coordinates)").format(p=f"{diag.mantel.p:.3f}",
-                                                           permutations=diag.mantel.permutations,
-                                                           n=diag.mantel.n))]
+                                    "coordinates)").format(
+                                        p=number(diag.mantel.p, 3),
+                                        permutations=number(diag.mantel.permutations),
+                                        n=number(diag.mantel.n)))]
     tips = results.tree.tip >= 0
     if diag.from_root is not None:
         values = diag.from_root[tips]
         facts += [(_("Expected changes from the root to an object"),
                    _("median {median}, range {low} to {high}").format(
-                       median=f"{np.median(values):.2f}", low=f"{values.min():.2f}",
-                       high=f"{values.max():.2f}"))]
+                       median=number(float(np.median(values)), 2),
+                       low=number(float(values.min()), 2), high=number(float(values.max()), 2)))]
     violations = []
     for x in diag.violations:
         violations.append({"title": node_title(atlas, results, x.node, notes_by_node),
@@ -229,36 +235,37 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
     internal = [v for v in range(results.tree.n_nodes)
                 if results.tree.tip[v] < 0 and v != results.tree.root]
     supports = summary.support[internal] if internal else np.array([])
-    _ = atlas.i18n.gettext
+    _, number, percent = atlas.i18n.gettext, atlas.i18n.number, atlas.i18n.percent
     data = [
-        (_("Objects (tips of the trees)"), str(n_taxa)),
-        (_("Objects without a matrix row"), str(n_taxa - len(coded))),
-        (_("Discrete characters"), str(len(atlas.discrete))),
-        (_("Continuous characters"), str(len(atlas.continuous_characters))),
+        (_("Objects (tips of the trees)"), number(n_taxa)),
+        (_("Objects without a matrix row"), number(n_taxa - len(coded))),
+        (_("Discrete characters"), number(len(atlas.discrete))),
+        (_("Continuous characters"), number(len(atlas.continuous_characters))),
         (_("Unknown cells (?)"),
-         _("{n} of {total} ({percent}%)").format(
-             n=missing, total=total_cells, percent=f"{100 * missing / max(total_cells, 1):.1f}")),
-        (_("Not applicable cells (-)"), str(gaps)),
-        (_("Polymorphic cells"), str(poly)),
+         _("{n} of {total} ({percent})").format(
+             n=number(missing), total=number(total_cells),
+             percent=percent(missing / max(total_cells, 1), 1))),
+        (_("Not applicable cells (-)"), number(gaps)),
+        (_("Polymorphic cells"), number(poly)),
     ]
     trees = [
         (_("Tree file"), sample.file),
-        (_("Trees read"), str(sample.read)),
-        (_("Burn-in"), _("{n} trees ({percent}%)").format(
-            n=sample.burnin, percent=f"{100 * analysis['burnin']:.0f}")),
-        (_("Trees used"), str(len(sample.trees))),
+        (_("Trees read"), number(sample.read)),
+        (_("Burn-in"), _("{n} trees ({percent})").format(
+            n=number(sample.burnin), percent=percent(analysis["burnin"]))),
+        (_("Trees used"), number(len(sample.trees))),
         (_("Trees averaged for ancestral states"),
-         str(min(len(sample.trees), analysis["ancestral_trees"] or len(sample.trees)))),
-        (_("Summary tree"), summary.method),
+         number(min(len(sample.trees), analysis["ancestral_trees"] or len(sample.trees)))),
+        (_("Summary tree"), _(SUMMARY_METHODS[summary.method])),
         (_("Outgroup"), ", ".join(analysis["outgroup"]) or _("none: trees are rooted as written")),
-        (_("Clades in the summary tree"), str(len(internal))),
-        (_("Clades with support of 0.95 or more"), str(int(np.sum(supports >= 0.95)))),
+        (_("Clades in the summary tree"), number(len(internal))),
+        (_("Clades with support of 0.95 or more"), number(int(np.sum(supports >= 0.95)))),
     ]
-    parsimony = [(_("Tree length (steps)"), str(int(par.length)))]
+    parsimony = [(_("Tree length (steps)"), number(int(par.length)))]
     for label, attr in ((_("Ensemble consistency index (CI)"), "ensemble_ci"),
                         (_("Ensemble retention index (RI)"), "ensemble_ri"),
                         (_("Rescaled consistency index (RC)"), "ensemble_rc")):
-        parsimony.append((label, fmt(float(getattr(results.indices, attr)), 3)))
+        parsimony.append((label, number(float(getattr(results.indices, attr)), 3)))
     model = []
     fit = results.fit
     if fit is not None:
@@ -268,12 +275,13 @@ def methods_page(atlas: Atlas, results: Results, links: Links, notes_by_node) ->
                   + (_(", Mkv correction for variable characters") if fit.variable_only else "")),
                  (_("Rate variation"), _("four discrete gamma categories")
                   if fit.alpha is not None else _("equal rates")),
-                 *[(_("Rate ({name})").format(name=k), f"{v:.4g}")
+                 *[(_("Rate ({name})").format(name=k), number(f"{v:.4g}"))
                    for k, v in sorted(fit.rates.items())],
-                 *([(_("Gamma shape (alpha)"), f"{fit.alpha:.3g}")]
+                 *([(_("Gamma shape (alpha)"), number(f"{fit.alpha:.3g}"))]
                    if fit.alpha is not None else []),
-                 (_("Log-likelihood"), f"{fit.loglik:.2f}")]
-    numbers = {"n": len(sample.trees), "burnin": sample.burnin, "read": sample.read}
+                 (_("Log-likelihood"), number(fit.loglik, 2))]
+    numbers = {"n": number(len(sample.trees)), "burnin": number(sample.burnin),
+               "read": number(sample.read)}
     first = (_("The atlas summarises {n} trees sampled after discarding the first {burnin} of "
                "{read} as burn-in, as a majority-rule consensus tree with clade support given as "
                "the fraction of sampled trees that contain each clade.")
@@ -321,7 +329,7 @@ def _gaps(atlas: Atlas, links: Links) -> list[dict]:
          lambda n: ngettext("{n} object without a place on the map",
                             "{n} objects without a place on the map", n)),
     ]
-    return [{"what": what, "heading": heading(len(objs)).format(n=len(objs)),
+    return [{"what": what, "heading": heading(len(objs)).format(n=atlas.i18n.number(len(objs))),
              "objects": [{"title": o.title, "href": links.objects[o.id]} for o in objs]}
             for what, objs, heading in kinds if objs]
 

@@ -18,7 +18,7 @@ import jinja2
 
 from ..cache import Cache
 from ..errors import AtlasError, Problem
-from ..i18n import load_translations
+from ..i18n import load_translations, number_filters
 from . import downloads
 from .languages import language_links
 from .plan import SitePlan
@@ -71,6 +71,7 @@ def environment(theme: Theme, language: str = "en") -> jinja2.Environment:
     # extraction in atlas.i18n reads them); newstyle gettext escapes its arguments.
     env.policies["ext.i18n.trimmed"] = True
     env.install_gettext_translations(load_translations(language), newstyle=True)
+    env.filters.update(number_filters(language))  # {{ n | number }}, {{ f | percent }}
     return env
 
 

@@ -11,7 +11,8 @@ at twice the width for the clade maps, which fill the column), under a points-on
 overlay per state (``figures/characters/<slug>-<state>.svg``) or per clade
 (``figures/nodes/<id>.svg``), each on exactly the same window, stacked with CSS
 (``.map-layers``). An overlay holds only circles and counts, so it costs about 40 bytes per
-place it shows.
+place it shows. Their titles are in the language being rendered (``atlas.i18n``), so a language
+whose titles differ gets its own copies under ``<lang>/figures/``.
 
 ``data/matrix.js`` assigns ``window.AtlasData.matrix``, the coded states written once for the
 whole site::
@@ -127,7 +128,8 @@ def _mapped(atlas: Atlas, obj) -> str | None:
 def state_rows(atlas: Atlas, c: Character) -> list[dict]:
     """Per state (then unknown and not applicable, when any object has them): the published
     objects coded so, how many of them are polymorphic, and the places they were recorded at
-    with the number at each (most first). ``places`` maps place id to count."""
+    with the number at each (most first). ``places`` maps place id to count. The words for
+    unknown and not applicable are in the language of ``atlas.i18n``."""
     j = atlas.characters.index(c)
     keys = [str(k) for k in range(len(c.symbols))] + ["?", "-"]
     seen: dict[str, list[str]] = {}  # cell text -> categories
@@ -152,15 +154,17 @@ def state_rows(atlas: Atlas, c: Character) -> list[dict]:
         row = rows[k]
         if k in ("?", "-") and not row["count"]:
             continue
+        lang = ""  # of an untranslated description, for its lang attribute
         if k == "?":
-            symbol, description = "?", "unknown"
+            symbol, description = "?", atlas.i18n.gettext("unknown")
         elif k == "-":
-            symbol, description = "-", "not applicable"
+            symbol, description = "-", atlas.i18n.gettext("not applicable")
         else:
             symbol, description = c.symbols[int(k)], c.descriptions[int(k)]
+            lang = c.state_lang(int(k))
         swatch = "state-swatch-" + (_file_key(k) if k in ("?", "-")
                                     else str(min(int(k), len(STATE_COLOURS) - 1)))
-        out.append({**row, "symbol": symbol, "description": description,
+        out.append({**row, "symbol": symbol, "description": description, "lang": lang,
                     "colour": category_colour(k), "swatch": swatch,
                     "places": dict(sorted(row["places"].items(), key=lambda kv: (-kv[1], kv[0])))})
     return out
@@ -225,7 +229,8 @@ def node_page_map(page: PagePlan, atlas: Atlas, results: Results, v: int,
     outline = " ".join(f"{lat:.4f},{lon:.4f}" for lat, lon in rng.hull)
     context = {**page.context, "range_map": {
         "outline": outline, "vertices": len(rng.hull),
-        "area": f"{rng.area_km2:,.0f}", "spread": f"{rng.spread_km:,.0f}",
+        "area": atlas.i18n.number(rng.area_km2, 0),
+        "spread": atlas.i18n.number(rng.spread_km, 0),
         "static": root + f"figures/nodes/{results.ids[v]}.svg" if view is not None else "",
         "basemap": root + WIDE_BASEMAP if view is not None else "",
         "centre": f"{fmt(rng.centroid_lat, 1)}, {fmt(rng.centroid_lon, 1)}",
@@ -246,15 +251,19 @@ def layered_files(atlas: Atlas, results: Results, links: Links, view: _View | No
                        .read_text("utf-8"))
     land, region = land_paths(world), basemap_rings(atlas.basemap)
     wide = study_view(atlas, WIDE_LAYER_WIDTH) or view
+    _ = atlas.i18n.gettext
     files = {path: basemap_svg(v, rings=land, extra_polygons=region,
-                               title=f"The study area of {atlas.config.title}")
+                               title=_("The study area of {title}").format(
+                                   title=atlas.config.title))
              for path, v in ((BASEMAP, view), (WIDE_BASEMAP, wide))}
     for c in atlas.discrete:
         for row in rows[c.id] if rows is not None else state_rows(atlas, c):
             if row["places"]:
                 files[character_overlay_path(links, c, row["key"])] = overlay_svg(
                     view, _points(atlas, row["places"]), fill=row["colour"],
-                    title=f"{c.label}: {row['symbol']} ({row['description']})",
+                    title=_("{character}: {symbol} ({description})").format(
+                        character=c.label, symbol=row["symbol"],
+                        description=row["description"]),
                     svg_id="state-map")
     tree = results.tree
     for v, nid in enumerate(results.ids):
@@ -270,5 +279,5 @@ def layered_files(atlas: Atlas, results: Results, links: Links, view: _View | No
         if counts:
             files[f"figures/nodes/{nid}.svg"] = overlay_svg(
                 wide, _points(atlas, dict(sorted(counts.items()))), outline=rng.hull,
-                title="Places of this clade and its range outline", svg_id="clade-map")
+                title=_("Places of this clade and its range outline"), svg_id="clade-map")
     return files

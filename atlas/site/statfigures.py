@@ -3,9 +3,11 @@
 Each figure is a static SVG file in ``figures/`` (shown with ``<img>``, so the page stays small
 at any number of characters) and a table of the same numbers on the page. The SVG is drawn
 here from plain numbers: no script, no external reference, fixed decimals, so the same input
-gives the same bytes. Colours are the site's light palette (``--fg``, ``--muted``,
-``--border``, ``--clade-0`` in ``assets/atlas.css``) on a white ground, which reads the same on
-screen, on a phone (the figure scales to the column) and on paper.
+gives the same bytes. Every word and number in them (title, description, axis labels, tick
+labels, each bar's title) is in the language being rendered (``atlas.i18n``), so they are
+written per language (``fr/figures/support.svg``). Colours are the site's light palette
+(``--fg``, ``--muted``, ``--border``, ``--clade-0`` in ``assets/atlas.css``) on a white ground,
+which reads the same on screen, on a phone (the figure scales to the column) and on paper.
 
 - :func:`histogram`: counts of values in bins, the convention of ``numpy.histogram``;
 - :func:`histogram_svg`: a histogram drawn with its axes, title and labels;
@@ -23,8 +25,11 @@ from html import escape
 import numpy as np
 
 from ..analysis.results import Results
+from ..i18n import N_, Translator
 from ..model import Atlas
 from .views import PagePlan, fmt
+
+ENGLISH = Translator()  # the figures' words when no other language is asked for
 
 FG, MUTED, GRID, BAR = "#1c1f23", "#565c63", "#cfccc4", "#0072b2"  # atlas.css, light scheme
 WIDTH, HEIGHT = 420, 260
@@ -71,8 +76,17 @@ def _n(v: float) -> str:
     return "0.0" if text == "-0.0" else text
 
 
-def _label(v: float) -> str:
-    return f"{v:g}"
+def _label(v: float, tr: Translator = ENGLISH) -> str:
+    """A tick or bin edge as the reader writes it: ``0.5`` (``0,5`` in French)."""
+    return tr.number(f"{v:g}")
+
+
+def _bin_text(tr: Translator, a: float, b: float, count: int | None = None) -> str:
+    low, high = _label(round(a, 10), tr), _label(round(b, 10), tr)
+    if count is None:
+        return tr.gettext("{low} to {high}").format(low=low, high=high)
+    return tr.gettext("{low} to {high}: {count}").format(low=low, high=high,
+                                                         count=tr.number(count))
 
 
 def _frame(title: str, svg_id: str, desc: str, height: int = HEIGHT,
@@ -89,11 +103,12 @@ def _frame(title: str, svg_id: str, desc: str, height: int = HEIGHT,
 
 
 def histogram_svg(counts: Sequence[int], edges: Sequence[float], *, title: str, x_label: str,
-                  y_label: str, svg_id: str = "histogram") -> str:
+                  y_label: str, svg_id: str = "histogram", tr: Translator = ENGLISH) -> str:
     """A histogram: bar ``i`` spans ``edges[i]..edges[i + 1]`` on the x axis and its height
     is ``counts[i] / y_top`` of the plot's height, ``y_top`` the largest count rounded up to
     a :func:`nice_step`. Each bar carries ``data-count`` and a ``<title>`` with its range and
-    count; the axes have ticks, labels and a light grid."""
+    count; the axes have ticks, labels and a light grid. Words and numbers are written in
+    ``tr``'s language (``data-count`` stays a plain integer)."""
     counts = [int(c) for c in counts]
     edges = [float(e) for e in edges]
     plot_w, plot_h = WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM
@@ -107,15 +122,14 @@ def histogram_svg(counts: Sequence[int], edges: Sequence[float], *, title: str, 
     def py(y: float) -> float:
         return TOP + plot_h - y / y_top * plot_h
 
-    desc = "; ".join(f"{_label(a)} to {_label(b)}: {c}"
-                     for a, b, c in zip(edges, edges[1:], counts))
+    desc = "; ".join(_bin_text(tr, a, b, c) for a, b, c in zip(edges, edges[1:], counts))
     parts = _frame(title, svg_id, desc)
     ticks = []
     y = 0.0
     while y <= y_top + 1e-9:
         ticks.append(f'<line x1="{LEFT}" x2="{LEFT + plot_w}" y1="{_n(py(y))}" y2="{_n(py(y))}" '
                      f'stroke="{GRID}"/><text x="{LEFT - 6}" y="{_n(py(y) + 4)}" '
-                     f'text-anchor="end">{_label(round(y, 10))}</text>')
+                     f'text-anchor="end">{_label(round(y, 10), tr)}</text>')
         y += step
     parts.append(f'<g class="y-axis" {FONT} font-size="12" fill="{MUTED}">{"".join(ticks)}</g>')
     bars = []
@@ -123,10 +137,11 @@ def histogram_svg(counts: Sequence[int], edges: Sequence[float], *, title: str, 
         h = c / y_top * plot_h
         bars.append(f'<rect class="bar" data-count="{c}" x="{_n(px(a) + 1)}" '
                     f'y="{_n(py(0) - h)}" width="{_n(max(px(b) - px(a) - 2, 0.5))}" '
-                    f'height="{_n(h)}"><title>{_label(a)} to {_label(b)}: {c}</title></rect>')
+                    f'height="{_n(h)}"><title>{escape(_bin_text(tr, a, b, c))}</title></rect>')
     parts.append(f'<g class="bars" fill="{BAR}">{"".join(bars)}</g>')
     every = max(1, math.ceil(len(edges) / 11))
-    xt = [f'<text x="{_n(px(e))}" y="{TOP + plot_h + 16}" text-anchor="middle">{_label(e)}</text>'
+    xt = [f'<text x="{_n(px(e))}" y="{TOP + plot_h + 16}" text-anchor="middle">'
+          f'{_label(e, tr)}</text>'
           for i, e in enumerate(edges) if i % every == 0 or i == len(edges) - 1]
     parts.append(f'<g class="x-axis" {FONT} font-size="12" fill="{MUTED}">'
                  f'<line x1="{LEFT}" x2="{LEFT + plot_w}" y1="{_n(py(0))}" y2="{_n(py(0))}" '
@@ -144,10 +159,11 @@ def _axis_labels(x_label: str, y_label: str, plot_w: float, plot_h: float) -> st
 
 
 def strip_svg(groups: Sequence[tuple[str, Sequence[float]]], *, title: str, x_label: str,
-              svg_id: str = "strip") -> str:
+              svg_id: str = "strip", tr: Translator = ENGLISH) -> str:
     """One row per group, a thin tick per value at ``x = value`` on a 0-1 axis, the group's
     median as a taller dark tick. Rows carry ``data-group`` and ``data-n``; each value tick
-    carries ``data-value``. Values that are not finite are left out."""
+    carries ``data-value``. Values that are not finite are left out. Words and numbers are
+    written in ``tr``'s language."""
     rows = [(name, [float(v) for v in values if math.isfinite(float(v))])
             for name, values in groups]
     label_w = 130
@@ -155,8 +171,12 @@ def strip_svg(groups: Sequence[tuple[str, Sequence[float]]], *, title: str, x_la
     plot_w = WIDTH - left - RIGHT
     row_h = 26
     height = TOP + row_h * max(len(rows), 1) + BOTTOM
-    desc = "; ".join(f"{name}: {len(v)} characters, median {fmt(float(np.median(v)))}"
-                     if v else f"{name}: none" for name, v in rows)
+    desc = "; ".join(tr.ngettext("{group}: {n} character, median {median}",
+                                 "{group}: {n} characters, median {median}", len(v)).format(
+                         group=name, n=tr.number(len(v)),
+                         median=tr.number(float(np.median(v)), 2))
+                     if v else tr.gettext("{group}: none").format(group=name)
+                     for name, v in rows)
     parts = _frame(title, svg_id, desc, height=height, left=12)
 
     def px(x: float) -> float:
@@ -165,7 +185,7 @@ def strip_svg(groups: Sequence[tuple[str, Sequence[float]]], *, title: str, x_la
     bottom = TOP + row_h * len(rows)
     grid = "".join(f'<line x1="{_n(px(t))}" x2="{_n(px(t))}" y1="{TOP}" y2="{bottom}" '
                    f'stroke="{GRID}"/><text x="{_n(px(t))}" y="{bottom + 16}" '
-                   f'text-anchor="middle">{_label(t)}</text>' for t in np.linspace(0, 1, 6))
+                   f'text-anchor="middle">{_label(t, tr)}</text>' for t in np.linspace(0, 1, 6))
     parts.append(f'<g class="x-axis" {FONT} font-size="12" fill="{MUTED}">{grid}</g>')
     for r, (name, values) in enumerate(rows):
         y = TOP + r * row_h + row_h / 2
@@ -199,9 +219,12 @@ def _change_edges(values: np.ndarray) -> np.ndarray:
     return np.arange(0.0, step * (math.floor(top / step) + 1) + step / 2, step)
 
 
-def _rows(counts, edges) -> list[dict]:
-    return [{"range": f"{_label(round(a, 10))} to {_label(round(b, 10))}", "count": int(c)}
+def _rows(counts, edges, tr: Translator = ENGLISH) -> list[dict]:
+    return [{"range": _bin_text(tr, a, b), "count": int(c)}
             for a, b, c in zip(edges, edges[1:], counts)]
+
+
+OTHER_GROUP = N_("Other traits")  # the group of a character that names none
 
 
 def methods_figures(atlas: Atlas, results: Results) -> tuple[dict, dict[str, str]]:
@@ -214,7 +237,11 @@ def methods_figures(atlas: Atlas, results: Results) -> tuple[dict, dict[str, str
       1989, Cladistics 5:417-419) by group; characters with ``g = m`` have none;
     - changes: the expected number of changes of all discrete characters on each branch
       (Minin & Suchard 2008, J. Math. Biol. 56:391-412), summed over characters.
+
+    Titles, labels and numbers are in the language of ``atlas.i18n``.
     """
+    tr = atlas.i18n
+    _ = tr.gettext
     tree = results.tree
     internal = [v for v in range(tree.n_nodes) if tree.tip[v] < 0 and v != tree.root]
     support = np.asarray(results.summary.support, dtype=np.float64)[internal]
@@ -223,21 +250,21 @@ def methods_figures(atlas: Atlas, results: Results) -> tuple[dict, dict[str, str
     files: dict[str, str] = {}
     if internal:
         files["figures/support.svg"] = histogram_svg(
-            counts, SUPPORT_EDGES, title="Clade support in the summary tree",
-            x_label="Support (fraction of sampled trees with the clade)",
-            y_label="Clades", svg_id="support-figure")
+            counts, SUPPORT_EDGES, title=_("Clade support in the summary tree"),
+            x_label=_("Support (fraction of sampled trees with the clade)"),
+            y_label=_("Clades"), svg_id="support-figure", tr=tr)
         figures["support"] = {
-            "src": "figures/support.svg", "rows": _rows(counts, SUPPORT_EDGES),
+            "src": "figures/support.svg", "rows": _rows(counts, SUPPORT_EDGES, tr),
             "n": len(internal), "median": fmt(float(np.median(support)))}
     ri = np.asarray(results.indices.ri, dtype=np.float64)
     groups: dict[str, list[float]] = {}
     for c in atlas.discrete:
-        groups.setdefault(c.group or "Other traits", []).append(float(ri[c.column]))
+        groups.setdefault(c.group or _(OTHER_GROUP), []).append(float(ri[c.column]))
     if groups:
         files["figures/retention.svg"] = strip_svg(
-            list(groups.items()), title="Retention index per character, by group",
-            x_label="Retention index (RI): 0 homoplastic, 1 fully retained",
-            svg_id="retention-figure")
+            list(groups.items()), title=_("Retention index per character, by group"),
+            x_label=_("Retention index (RI): 0 homoplastic, 1 fully retained"),
+            svg_id="retention-figure", tr=tr)
         rows = []
         for name, values in groups.items():
             v = np.asarray(values)
@@ -253,10 +280,10 @@ def methods_figures(atlas: Atlas, results: Results) -> tuple[dict, dict[str, str
         edges = _change_edges(branches)
         hist = histogram(branches, edges)
         files["figures/changes.svg"] = histogram_svg(
-            hist, edges, title="Expected changes per branch",
-            x_label="Expected changes on the branch (all characters, likelihood)",
-            y_label="Branches", svg_id="changes-figure")
-        figures["changes"] = {"src": "figures/changes.svg", "rows": _rows(hist, edges),
+            hist, edges, title=_("Expected changes per branch"),
+            x_label=_("Expected changes on the branch (all characters, likelihood)"),
+            y_label=_("Branches"), svg_id="changes-figure", tr=tr)
+        figures["changes"] = {"src": "figures/changes.svg", "rows": _rows(hist, edges, tr),
                               "n": int(branches.size),
                               "median": fmt(float(np.median(branches)))}
     return figures, files

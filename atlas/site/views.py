@@ -125,13 +125,14 @@ def node_title(atlas: Atlas, results: Results, v: int, notes_by_node: dict[int, 
     n = len(results.members[v])
     if v == tree.root:
         return atlas.i18n.gettext("Root of the tree")
-    return atlas.i18n.ngettext("Clade of {n} object", "Clade of {n} objects", n).format(n=n)
+    return atlas.i18n.ngettext("Clade of {n} object", "Clade of {n} objects", n).format(
+        n=atlas.i18n.number(n))
 
 
 def fallback_lang(atlas: Atlas, item) -> str:
-    """The ``lang`` a page gives a note shown untranslated (``""`` when it is translated or
-    the page is in the note's language); for a character, whose notes are not translated,
-    the default language on every other language's pages."""
+    """The ``lang`` a page gives a note (or a character's label) shown untranslated (``""``
+    when it is translated or the page is in the note's language); for an item that carries
+    no ``fallback_lang``, the default language on every other language's pages."""
     lang = getattr(item, "fallback_lang", None)
     if lang is None:
         default = atlas.config.languages[0]
@@ -260,7 +261,7 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
     focus = next(n.index for n in local if n.id == obj.id)
     svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
                    title=_("Where {title} stands among its closest relatives").format(
-                       title=obj.title)) if _drawable(local) else ""
+                       title=obj.title), tr=atlas.i18n) if _drawable(local) else ""
     images = [{"src": root + "media/" + im.file, "alt": im.alt, "credit": im.credit,
                "licence": im.licence, "caption": im.caption} for im in obj.images]
     diagnostics = _object_diagnostics(atlas, results, links, obj, v, root, notes_by_node)
@@ -310,7 +311,8 @@ def borrowing_rows(atlas: Atlas, results: Results, links: Links, root: str, note
                                      "href": root + links.characters[discrete[j].id]}
                                     for j in c.characters],
                      "distance": "–" if c.distance is None or not math.isfinite(c.distance)
-                     else f"{c.distance:,.0f} km"})
+                     else atlas.i18n.gettext("{distance} km").format(
+                         distance=atlas.i18n.number(c.distance, 0))})
         if len(rows) >= limit:
             break
     return rows
@@ -349,7 +351,8 @@ def _object_diagnostics(atlas: Atlas, results: Results, links: Links, obj: ArtOb
     return {
         "delta": fmt(delta[0], 3) if delta else "",
         "q_residual": fmt(delta[1], 4) if delta else "",
-        "rank": atlas.i18n.gettext("{rank} of {n}").format(rank=rank, n=len(diag.delta_taxa))
+        "rank": atlas.i18n.gettext("{rank} of {n}").format(
+            rank=atlas.i18n.number(rank), n=atlas.i18n.number(len(diag.delta_taxa)))
         if rank else "",
         "mean_delta": fmt(diag.delta.mean_delta, 3) if diag.delta is not None else "",
         "from_root": fmt(float(from_root[v])) if from_root is not None else "",
@@ -369,17 +372,18 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     count = int(results.summary.count[v])
     n_trees = results.summary.n_trees
     title = node_title(atlas, results, v, notes_by_node)
-    _, ngettext = atlas.i18n.gettext, atlas.i18n.ngettext
+    _, ngettext, number = atlas.i18n.gettext, atlas.i18n.ngettext, atlas.i18n.number
     facts = [
         (_("Node id"), nid),
-        (_("Posterior probability (clade support)"), fmt(support)),
-        (_("Sampled trees with this clade"), _("{rank} of {n}").format(rank=count, n=n_trees)),
-        (_("Objects in the clade"), str(len(results.members[v]))),
+        (_("Posterior probability (clade support)"), number(support, 2)),
+        (_("Sampled trees with this clade"), _("{rank} of {n}").format(rank=number(count),
+                                                                      n=number(n_trees))),
+        (_("Objects in the clade"), number(len(results.members[v]))),
     ]
     if results.fit is not None:
         n = int(results.prob_trees[v])
         facts.append((_("Reconstruction averaged over"),
-                      ngettext("{n} sampled tree", "{n} sampled trees", n).format(n=n)))
+                      ngettext("{n} sampled tree", "{n} sampled trees", n).format(n=number(n))))
     parent = int(tree.parent[v])
     up = None
     if parent >= 0:
@@ -407,7 +411,7 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     local = neighbourhood(layout, v)
     focus = next(n.index for n in local if n.id == nid)
     svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
-                   title=_("The clade below {title}").format(title=title)) \
+                   title=_("The clade below {title}").format(title=title), tr=atlas.i18n) \
         if _drawable(local) else ""
     places = sorted({atlas.objects[m].place for m in results.members[v]
                      if atlas.objects[m].place and atlas.objects[m].place in atlas.places})
@@ -415,7 +419,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     if rng is not None:
         facts.append((_("Range of its places"), _(
             "{n} places, about {spread} km from their centre, hull {area} km²").format(
-                n=rng.n, spread=f"{rng.spread_km:,.0f}", area=f"{rng.area_km2:,.0f}")))
+                n=number(rng.n), spread=number(rng.spread_km, 0),
+                area=number(rng.area_km2, 0))))
     violations = [{"text": violation_text(atlas, x), "note": x.rule.note}
                   for x in results.diagnostics.violations if x.node == v]
     names = {n.name for n in notes_by_node.get(v, [])}
@@ -503,7 +508,8 @@ def defining_traits(atlas: Atlas, results: Results, links: Links, v: int, root: 
                         state=c.describe(c.symbols[1])), "evidence": ""})
                 entry["evidence"] = "; ".join(filter(None, [
                     entry["evidence"], atlas.i18n.gettext(
-                        "likelihood: {gain} expected gains").format(gain=f"{gain:.2f}")]))
+                        "likelihood: {gain} expected gains").format(
+                            gain=atlas.i18n.number(gain, 2))]))
     return [found[j] for j in sorted(found, key=lambda j: discrete[j].label)]
 
 
@@ -589,7 +595,7 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
             members = [o for key, objs in by_state.items() for o in objs
                        if s in key.split("/")]
             states.append({"symbol": s, "description": c.descriptions[k],
-                           "count": len(members),
+                           "lang": c.state_lang(k), "count": len(members),
                            "objects": _member_chips(atlas, links, root, [o.id for o in members])})
     unknown = by_state.get("?", []) + by_state.get("-", [])
     _ = atlas.i18n.gettext
@@ -599,15 +605,17 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
     changes = []
     if c.kind == "discrete":
         par = results.parsimony
-        facts.append((_("Steps on the summary tree (parsimony)"), str(int(par.steps[c.column]))))
+        number = atlas.i18n.number
+        facts.append((_("Steps on the summary tree (parsimony)"),
+                      number(int(par.steps[c.column]))))
         for name, attr in ((_("Consistency index (CI)"), "ci"),
                            (_("Retention index (RI)"), "ri")):
-            facts.append((name, fmt(float(getattr(results.indices, attr)[c.column]))))
+            facts.append((name, number(float(getattr(results.indices, attr)[c.column]), 2)))
         if results.changes is not None:
             tree = results.tree
             total = results.changes.total[:, c.column]
             facts.append((_("Expected changes on the summary tree (likelihood)"),
-                          fmt(float(total.sum()))))
+                          number(float(total.sum()), 2)))
             for v in np.argsort(-total, kind="stable").tolist():
                 if total[v] < 0.5 or int(tree.parent[v]) < 0:
                     continue
@@ -628,7 +636,7 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
         "changes": changes, "binary": len(c.symbols) == 2,
         "ledger": ledger.character_ledger(atlas, links, c, root),
         "breadcrumbs": [(_("Glossary"), root + "glossary.html")],
-        "lang": fallback_lang(atlas, c) if c.body else "",
+        "lang": c.body_lang, "title_lang": c.fallback_lang,
     })
 
 
@@ -637,9 +645,13 @@ def glossary_page(atlas: Atlas, results: Results, links: Links) -> PagePlan:
     par = results.parsimony
     ci = results.indices.ci
     for c in atlas.characters:
+        # untranslated descriptions: one lang for the cell when all are, else one per state
+        whole = c.state_lang(0) if c.symbols and len(set(c.state_langs)) == 1 else ""
         row = {"id": c.id, "label": c.label, "href": links.characters[c.id],
-               "states": [{"symbol": s, "description": d}
-                          for s, d in zip(c.symbols, c.descriptions)],
+               "lang": c.fallback_lang, "states_lang": whole,
+               "states": [{"symbol": s, "description": d,
+                           "lang": "" if whole else c.state_lang(k)}
+                          for k, (s, d) in enumerate(zip(c.symbols, c.descriptions))],
                "steps": "", "ci": ""}
         row["map"] = links.characters[c.id] + "#distribution" if c.kind == "discrete" else ""
         if c.kind == "discrete":

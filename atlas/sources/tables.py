@@ -10,7 +10,7 @@ import csv
 import io
 import re
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import Problems, did_you_mean
@@ -27,6 +27,9 @@ class CharacterRow:
     kind: str  # "discrete" or "continuous"
     file: str
     line: int
+    # lang -> {"label": text, "states": {symbol: description}} from label@<lang> and
+    # states@<lang> columns (only the non-empty ones)
+    translations: dict[str, dict] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -50,10 +53,16 @@ class Rule:
 
 
 def _rows(text: str, shown: str, problems: Problems, ours: dict[str, str],
-          required: tuple[str, ...]):
-    """(line, record keyed by our names) for each row of a CSV with mapped column names."""
+          required: tuple[str, ...], localised: tuple[str, ...] = ()):
+    """(line, record keyed by our names) for each row of a CSV with mapped column names.
+
+    For each of our keys in ``localised`` (``label``), columns named like its column with a
+    language suffix (``label@fr``, or ``Label@fr`` when ``label`` is mapped to ``Label``)
+    are in the record too, as ``label@fr``."""
     reader = csv.DictReader(io.StringIO(text))
     header = reader.fieldnames or []
+    extra = {f"{key}@{col.split('@', 1)[1]}": col for key in localised for col in header
+             if col.startswith(ours[key] + "@") and col != ours[key] + "@"}
     missing = [k for k in required if ours[k] not in header]
     for key in missing:
         problems.error(shown, 1, f"has no column {ours[key]!r} (for {key})",
@@ -70,7 +79,8 @@ def _rows(text: str, shown: str, problems: Problems, ours: dict[str, str],
                 continue
             if not any((v or "").strip() for v in row.values()):
                 continue
-            yield line, {k: (row.get(col) or "").strip() for k, col in ours.items()}
+            yield line, {k: (row.get(col) or "").strip()
+                         for k, col in (ours | extra).items()}
     except csv.Error as exc:
         problems.error(shown, reader.line_num, f"is not readable CSV: {exc}")
 
@@ -95,8 +105,19 @@ def parse_states(text: str) -> dict[str, str]:
 _TRUE = {"true", "yes", "1", "ordered"}
 
 
+def parse_translated_states(text: str) -> dict[str, str]:
+    """A ``states@<lang>`` cell (``0=absente;1=présente``) as a mapping; empty gives none.
+
+    >>> parse_translated_states("0=absente; 1=présente"), parse_translated_states("")
+    ({'0': 'absente', '1': 'présente'}, {})
+    """
+    return parse_states(text) if text.strip() else {}
+
+
 def read_character_table(path: Path, shown: str, problems: Problems,
                          columns: dict[str, str] | None = None) -> list[CharacterRow]:
+    """The characters table: ``id,label,group,states,ordered,kind`` (our names, mapped by
+    ``columns``) and, for a translation, ``label@<lang>`` and ``states@<lang>`` columns."""
     text = read_text(path, problems, shown)
     if text is None:
         return []
@@ -104,7 +125,7 @@ def read_character_table(path: Path, shown: str, problems: Problems,
     ours = {k: (columns or {}).get(k, k) for k in keys}
     out: list[CharacterRow] = []
     seen: dict[str, int] = {}
-    for line, r in _rows(text, shown, problems, ours, ("id",)):
+    for line, r in _rows(text, shown, problems, ours, ("id",), ("label", "states")):
         if not r["id"]:
             problems.error(shown, line, "a character has no id")
             continue
@@ -117,10 +138,17 @@ def read_character_table(path: Path, shown: str, problems: Problems,
         if kind not in ("discrete", "continuous"):
             problems.error(shown, line, f"kind {kind!r} is not discrete or continuous")
             kind = "discrete"
+        translations: dict[str, dict] = {}
+        for key, value in r.items():
+            if "@" in key and value:
+                what, lang = key.split("@", 1)
+                translations.setdefault(lang, {})[what] = (
+                    parse_translated_states(value) if what == "states" else value)
         out.append(CharacterRow(
             id=r["id"], label=r["label"] or r["id"], group=r["group"] or "Characters",
             states={} if kind == "continuous" else parse_states(r["states"]),
             ordered=r["ordered"].lower() in _TRUE, kind=kind, file=shown, line=line,
+            translations=dict(sorted(translations.items())),
         ))
     return out
 

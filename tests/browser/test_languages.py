@@ -101,3 +101,66 @@ def test_french_pages_pass_axe(chromium, site, server, page):
         assert visit.problems() == []
     finally:
         axe_tab.close()
+
+
+# --- the lineage tree speaks the page's language ----------------------------------------------
+# The words are the French catalogue's (atlas/locale/fr); the numbers follow CLDR for French
+# (a decimal comma), as the browser's own Intl.NumberFormat("fr") writes them.
+
+_TREE = """() => {
+  const gd = document.getElementById('lineage-tree');
+  return {legend: (gd.querySelector('.legend') || {}).textContent || '',
+          hover: gd.data.filter(t => t.meta === 'nodes').map(t => t.hovertext).flat(),
+          text: gd.data.filter(t => t.meta === 'nodes').map(t => t.text || []).flat(),
+          names: gd.data.map(t => t.name || ''),
+          buttons: [...gd.querySelectorAll('.modebar-btn')].map(b => b.getAttribute('data-title')),
+          decimal: new Intl.NumberFormat('fr').format(0.5).charAt(1)};
+}"""
+
+
+def _redrawn(page) -> None:
+    page.wait_for_timeout(150)  # the script redraws on the next animation frame
+    page.evaluate("() => new Promise(r => requestAnimationFrame(() => r()))")
+
+
+def test_french_tree_draws_its_words_in_french(tab, site, server):
+    needs_french(site)
+    page = tab.page
+    visit = tab.open(server + "fr/tree.html")
+    assert visit.problems() == []
+    drawn = page.evaluate(_TREE)
+    assert drawn["decimal"] == ","
+    assert drawn["legend"].startswith("Légende")  # the key's title (English: "Key")
+    assert "Branche" in drawn["names"] and "Objet (ouvre sa page)" in drawn["names"]
+    assert all("Soutien" in h and "objets" in h for h in drawn["hover"] if "Racine" not in h)
+    assert any("Pas depuis la racine" in h or "Longueur de branche" in h for h in drawn["hover"])
+    supports = [t for t in drawn["text"] if t]
+    assert supports and all("," in t and "." not in t for t in supports)  # 0,87, not 0.87
+    assert "Zoom avant" in drawn["buttons"] and "Zoom in" not in drawn["buttons"]
+    # shaded by a trait translated in the demo (characters/b01.fr.md): French key and states
+    page.select_option("#tree-shade", "b01")
+    _redrawn(page)
+    legend = page.evaluate(_TREE)["legend"]
+    assert "Contour du corps en plan\u00a0: état le plus probable" in legend
+    assert "état 1 (piriforme), probabilité de 0,9 ou plus" in legend
+    options = page.eval_on_selector_all("#tree-state option", "os => os.map(o => o.text)")
+    assert options[0] == "État le plus probable"
+    assert "Probabilité de l’état 2 (naviforme)" in options
+    page.fill("#tree-find", "zzz")
+    page.click("#tree-controls button[type=submit]")
+    _redrawn(page)
+    status = page.text_content("#tree-find-status")
+    assert status == "Aucun objet ne correspond à «\u00a0zzz\u00a0»."
+
+
+def test_french_character_page_shades_its_tree_in_french(tab, site, server):
+    needs_french(site)
+    visit = tab.open(server + "fr/characters/h02.html")
+    assert visit.problems() == []
+    legend = tab.page.evaluate(_TREE)["legend"]
+    assert "Type d’anse\u00a0: état le plus probable (plus pâle\u00a0: moins certain)" in legend
+    assert "état 2 (en ruban)" in legend
+    english = tab.open(server + "characters/h02.html")  # the English page keeps English
+    assert english.problems() == []
+    legend = tab.page.evaluate(_TREE)["legend"]
+    assert "Handle type: most probable state" in legend and "state 2 (strap)" in legend

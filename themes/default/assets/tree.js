@@ -51,12 +51,110 @@
   // Tol (2021) YlOrBr, the six darker steps (the palest are invisible on a white page).
   var GRADED = ["#FEC44F", "#FB9A29", "#EC7014", "#CC4C02", "#993404", "#662506"];
   var CONTACT_COLOUR = "#CC79A7";
-  var CERTAINTY = [
-    { below: 0.5, alpha: 0.3, words: "below 0.5" },
-    { below: 0.7, alpha: 0.5, words: "0.5 to 0.7" },
-    { below: 0.9, alpha: 0.75, words: "0.7 to 0.9" },
-    { below: Infinity, alpha: 1, words: "0.9 or more" },
+  var CERTAINTY = [ // the steps of certainty of the most probable state, palest first
+    { below: 0.5, alpha: 0.3 },
+    { below: 0.7, alpha: 0.5 },
+    { below: 0.9, alpha: 0.75 },
+    { below: Infinity, alpha: 1 },
   ];
+
+  // Every word the tree writes (hover boxes, key, axis, status line, the state menu), in
+  // English. A page in another language gives them as data-text-* attributes on the plot's
+  // box (data-text-collapsed-hover for collapsedHover; templates/macros.html, tree_texts);
+  // {names} are filled in by say().
+  var WORDS = {
+    support: "Support",
+    withheld: "Withheld",
+    key: "Key",
+    branch: "Branch",
+    objects: "{n} objects",
+    tip: "Object (opens its page)",
+    clade: "Clade (number: support; opens its trait sheet)",
+    cladeHover: "Clade: point at a fork for its support; select it to open its trait sheet",
+    steps: "Steps from the root",
+    foundPath: "Path to the object found",
+    collapsed: "Collapsed clade (number of objects)",
+    collapsedHover: "{n} objects, collapsed (support {support})",
+    contact: "Declared contact",
+    contactTraits: "Traits: {traits}",
+    changesBetween: "{low} to {high} changes",
+    changesAtLeast: "{low} or more changes",
+    changesValue: "Expected changes on the branch: {value}",
+    changesValueTrait: "Expected changes on the branch ({trait}): {value}",
+    changesTitle: "Changes per branch, all traits",
+    changesTitleTrait: "Changes per branch: {trait}",
+    probBetween: "probability {low} to {high}",
+    probAtLeast: "probability {low} or more",
+    probValue: "Probability of {state}: {value}",
+    probTitle: "{trait}: probability of {state}",
+    mostBelow: "{state}, probability below {high}",
+    mostBetween: "{state}, probability {low} to {high}",
+    mostAtLeast: "{state}, probability {low} or more",
+    mostValue: "Most probable: {state} ({value})",
+    mostTitle: "{trait}: most probable state (paler: less certain)",
+    state: "state {symbol}",
+    stateDescribed: "state {symbol} ({description})",
+    allTraits: "All traits together",
+    chooseTrait: "Choose a trait first",
+    mostOption: "Most probable state",
+    probOption: "Probability of {state}",
+    changesOption: "Changes per branch (this trait)",
+    noCollapse: "none",
+    findPrompt: "Type part of an object's name to find it.",
+    findNone: "No object matches \u201c{query}\u201d.",
+    findOne: "Found {name}; its path to the root is highlighted.",
+    findMany: "Found {n} objects matching \u201c{query}\u201d; their paths to the root are " +
+      "highlighted.",
+    // plotly's own tool bar, by its English titles
+    plotZoom: "Zoom",
+    plotPan: "Pan",
+    plotZoomIn: "Zoom in",
+    plotZoomOut: "Zoom out",
+    plotReset: "Reset axes",
+    plotDownload: "Download plot",
+  };
+  var PLOTLY_KEYS = ["plotZoom", "plotPan", "plotZoomIn", "plotZoomOut", "plotReset",
+    "plotDownload"];
+
+  // Plain text: the caller escapes it where plotly reads markup.
+  function say(text, values) {
+    return text.replace(/\{(\w+)\}/g, function (all, name) {
+      return values && name in values ? String(values[name]) : all;
+    });
+  }
+
+  // Numbers in the page's language (<html lang>), with cached formatters: a hover box per
+  // point is written at every draw.
+  var PAGE_LANG = document.documentElement.lang || "en";
+  var NUMBER_FORMATS = {};
+  function numberFormat(options) {
+    try {
+      return new Intl.NumberFormat(PAGE_LANG, options);
+    } catch (err) { // an unknown language tag
+      return new Intl.NumberFormat("en", options);
+    }
+  }
+  function localNumber(value, minDigits, maxDigits) {
+    var key = minDigits + ":" + maxDigits;
+    var f = NUMBER_FORMATS[key];
+    if (!f) {
+      f = NUMBER_FORMATS[key] = numberFormat({ minimumFractionDigits: minDigits,
+        maximumFractionDigits: maxDigits });
+    }
+    return f.format(value);
+  }
+
+  // plotly's "separators" (decimal mark, then thousands) for the axis numbers.
+  function separators() {
+    var parts = numberFormat({}).formatToParts(12345.5);
+    var decimal = ".";
+    var group = ",";
+    parts.forEach(function (p) {
+      if (p.type === "decimal") decimal = p.value;
+      if (p.type === "group") group = p.value;
+    });
+    return decimal + group;
+  }
   var PROB_BINS = [0.2, 0.4, 0.6, 0.8, 0.95, Infinity]; // upper bounds, one per GRADED colour
   var CHANGE_BINS = [0.05, 0.25, 0.5, 1, 2, Infinity];
 
@@ -83,7 +181,7 @@
   }
 
   function formatSupport(value) {
-    return typeof value === "number" && isFinite(value) ? value.toFixed(2) : null;
+    return typeof value === "number" && isFinite(value) ? localNumber(value, 2, 2) : null;
   }
 
   function isAgeAxis(tree) {
@@ -128,10 +226,12 @@
   }
 
   function interfaceWords(div) {
-    return {
-      support: div.dataset.textSupport || "Support",
-      withheld: div.dataset.textWithheld || "Withheld",
-    };
+    var words = {};
+    Object.keys(WORDS).forEach(function (key) {
+      var given = div.dataset["text" + key.charAt(0).toUpperCase() + key.slice(1)];
+      words[key] = given || WORDS[key];
+    });
+    return words;
   }
 
   function rgba(hex, alpha) {
@@ -235,6 +335,7 @@
   // ---- Shading: a colour class per node (the branch above it takes the node's class) ------
 
   function shadeClasses(state, data) {
+    var words = data.words;
     var n = data.nodes.length;
     var states = data.states;
     var none = { classes: null, legend: [], value: null, title: "" };
@@ -254,15 +355,17 @@
       }
       var lower = [0].concat(CHANGE_BINS.slice(0, -1));
       GRADED.forEach(function (colour, b) {
-        legend.push({ colour: colour, name: b === GRADED.length - 1
-          ? lower[b] + " or more changes" : lower[b] + " to " + CHANGE_BINS[b] + " changes" });
+        var ends = { low: localNumber(lower[b], 0, 2), high: localNumber(CHANGE_BINS[b], 0, 2) };
+        legend.push({ colour: colour, name: say(b === GRADED.length - 1 ? words.changesAtLeast
+          : words.changesBetween, ends) });
       });
       describe = function (v) {
-        return "Expected changes on the branch" + (ch ? " (" + escapeText(ch.label) + ")" : "") +
-          ": " + values[v].toFixed(2);
+        var value = localNumber(values[v], 2, 2);
+        return escapeText(ch ? say(words.changesValueTrait, { trait: ch.label, value: value })
+          : say(words.changesValue, { value: value }));
       };
       return { classes: cls, legend: legend, describe: describe,
-        title: ch ? "Changes per branch: " + ch.label : "Changes per branch, all traits" };
+        title: ch ? say(words.changesTitleTrait, { trait: ch.label }) : words.changesTitle };
     }
     var c = characterById(states, state.shade);
     if (!c || !Array.isArray(c.p) || c.p.length !== n * c.k) return none;
@@ -275,14 +378,16 @@
       }
       var lo = [0].concat(PROB_BINS.slice(0, -1));
       GRADED.forEach(function (colour, b) {
-        legend.push({ colour: colour, name: b === GRADED.length - 1
-          ? "probability " + lo[b] + " or more" : "probability " + lo[b] + " to " + PROB_BINS[b] });
+        var ends = { low: localNumber(lo[b], 0, 2), high: localNumber(PROB_BINS[b], 0, 2) };
+        legend.push({ colour: colour, name: say(b === GRADED.length - 1 ? words.probAtLeast
+          : words.probBetween, ends) });
       });
       describe = function (u) {
-        return "Probability of " + escapeText(stateWords(c, s)) + ": " + values[u].toFixed(3);
+        return escapeText(say(words.probValue, { state: stateWords(c, s, words),
+          value: localNumber(values[u], 3, 3) }));
       };
       return { classes: cls, legend: legend, describe: describe,
-        title: c.label + ": probability of " + stateWords(c, s) };
+        title: say(words.probTitle, { trait: c.label, state: stateWords(c, s, words) }) };
     }
     // Most probable state; the class packs (state, certainty step).
     var steps = CERTAINTY.length;
@@ -296,26 +401,32 @@
     }
     for (var t = 0; t < k; t++) {
       for (var q = 0; q < steps; q++) {
+        var step = { state: stateWords(c, t, words),
+          low: q > 0 ? localNumber(CERTAINTY[q - 1].below, 0, 2) : "",
+          high: isFinite(CERTAINTY[q].below) ? localNumber(CERTAINTY[q].below, 0, 2) : "" };
         legend.push({ colour: rgba(stateColour(t), CERTAINTY[q].alpha),
-          name: stateWords(c, t) + ", probability " + CERTAINTY[q].words,
+          name: say(q === 0 ? words.mostBelow : q === steps - 1 ? words.mostAtLeast
+            : words.mostBetween, step),
           group: "state-" + t });
       }
     }
     describe = function (w) {
-      return "Most probable: " + escapeText(stateWords(c, best[w])) + " (" +
-        values[w].toFixed(3) + ")";
+      return escapeText(say(words.mostValue, { state: stateWords(c, best[w], words),
+        value: localNumber(values[w], 3, 3) }));
     };
     return { classes: cls, legend: legend, describe: describe,
-      title: c.label + ": most probable state (paler: less certain)" };
+      title: say(words.mostTitle, { trait: c.label }) };
   }
 
   function stateColour(t) {
     return STATE_COLOURS[Math.min(t, STATE_COLOURS.length - 1)];
   }
 
-  function stateWords(c, s) {
+  function stateWords(c, s, words) {
     var desc = c.descriptions && c.descriptions[s];
-    return "state " + c.symbols[s] + (desc && desc !== c.symbols[s] ? " (" + desc + ")" : "");
+    return desc && desc !== c.symbols[s]
+      ? say(words.stateDescribed, { symbol: c.symbols[s], description: desc })
+      : say(words.state, { symbol: c.symbols[s] });
   }
 
   function characterById(states, id) {
@@ -605,7 +716,7 @@
         }),
         line: { color: colour, width: width },
       });
-      var name = entry ? entry.name : "Branch";
+      var name = entry ? entry.name : words.branch;
       if (shownLegend.has(name)) return;
       shownLegend.add(name);
       traces.push({
@@ -624,7 +735,7 @@
       });
       traces.push({
         type: "scatter", mode: "lines", x: path.x, y: path.y, hoverinfo: "skip",
-        name: "Path to the object found",
+        name: escapeText(words.foundPath),
         line: { color: colours.accent, width: 4, simplify: false },
         meta: "found-path",
       });
@@ -649,16 +760,17 @@
         var mid = g.at(far, (index.minY[v] + index.maxY[v]) / 2);
         mark.x.push(mid[0]);
         mark.y.push(mid[1]);
-        mark.text.push(index.count[v] + " objects");
+        var many = localNumber(index.count[v], 0, 0);
+        mark.text.push(escapeText(say(words.objects, { n: many })));
         mark.hover.push("<b>" + escapeText(tipName(nodes[v], words)) + "</b><br>" +
-          index.count[v] + " objects, collapsed (support " + formatSupport(nodes[v].support) +
-          ")");
+          escapeText(say(words.collapsedHover, { n: many,
+            support: formatSupport(nodes[v].support) })));
         mark.href.push(nodes[v].withheld ? null : siteHref(nodes[v].href));
       });
       traces.push({
         type: "scatter", mode: "lines", x: tri.x, y: tri.y, fill: "toself",
         fillcolor: rgba("#999999", 0.35), line: { color: colours.branch, width: 1.5 },
-        hoverinfo: "skip", name: "Collapsed clade (number of objects)", meta: "collapsed",
+        hoverinfo: "skip", name: escapeText(words.collapsed), meta: "collapsed",
       });
       traces.push({
         type: "scatter", mode: "markers+text", x: mark.x, y: mark.y, text: mark.text,
@@ -696,15 +808,17 @@
         arc.y.push(null);
         mids.x.push(0.25 * g.X[a] + 0.5 * ctrl[0] + 0.25 * g.X[b]);
         mids.y.push(0.25 * g.Y[a] + 0.5 * ctrl[1] + 0.25 * g.Y[b]);
-        mids.hover.push("<b>Declared contact</b><br>" + escapeText(tipName(nodes[c.source],
-          words)) + " \u2194 " + escapeText(tipName(nodes[c.target], words)) +
-          (c.characters && c.characters.length ? "<br>Traits: " +
-            escapeText(shorten(c.characters.join(", "), 120)) : "") +
+        mids.hover.push("<b>" + escapeText(words.contact) + "</b><br>" +
+          escapeText(tipName(nodes[c.source], words)) + " \u2194 " +
+          escapeText(tipName(nodes[c.target], words)) +
+          (c.characters && c.characters.length ? "<br>" + escapeText(say(words.contactTraits,
+            { traits: shorten(c.characters.join(", "), 120) })) : "") +
           (c.note ? "<br>" + escapeText(shorten(String(c.note), 160)) : ""));
       });
       traces.push({
         type: "scatter", mode: "lines", x: arc.x, y: arc.y, hoverinfo: "skip",
-        name: "Declared contact", line: { color: CONTACT_COLOUR, width: 2, dash: "dash" },
+        name: escapeText(words.contact),
+        line: { color: CONTACT_COLOUR, width: 2, dash: "dash" },
         meta: "contacts",
       });
       traces.push({
@@ -730,9 +844,11 @@
       if (node.kind !== "tip" && support !== null) {
         lines.push(escapeText(words.support) + ": " + support);
       }
-      if (node.kind !== "tip") lines.push(index.count[v] + " objects");
-      var xt = state.lengths === "equal" ? "Steps from the root" : data.tree.x_title;
-      if (xt) lines.push(escapeText(xt) + ": " + Number(g.depth[v].toFixed(3)));
+      if (node.kind !== "tip") {
+        lines.push(escapeText(say(words.objects, { n: localNumber(index.count[v], 0, 0) })));
+      }
+      var xt = state.lengths === "equal" ? words.steps : data.tree.x_title;
+      if (xt) lines.push(escapeText(xt) + ": " + localNumber(g.depth[v], 0, 3));
       if (shade.describe) lines.push(shade.describe(v));
       return lines.join("<br>");
     }
@@ -757,9 +873,7 @@
         // (benchmarks/bench_tree_browser.py).
         mode: !markers ? "none" : showLabels ? "markers+text" : "markers",
         hoveron: "points",
-        name: isTip ? "Object (opens its page)" : markers
-          ? "Clade (number: support; opens its trait sheet)"
-          : "Clade: point at a fork for its support; select it to open its trait sheet",
+        name: escapeText(isTip ? words.tip : markers ? words.clade : words.cladeHover),
         meta: isTip ? "tips" : "nodes",
         x: keep.map(function (v) { return g.X[v]; }),
         y: keep.map(function (v) { return g.Y[v]; }),
@@ -834,12 +948,13 @@
       legend: {
         // above the plot, clear of the axis title below it
         orientation: "h", x: 0, xanchor: "left", y: 1.01, yanchor: "bottom",
-        title: { text: escapeText(shade.title || "Key"), side: "top left" },
+        title: { text: escapeText(shade.title || words.key), side: "top left" },
         font: { family: font, size: 12, color: colours.fg },
         itemclick: false, itemdoubleclick: false,
       },
       uirevision: state.layout + state.lengths,
       shapes: shapes,
+      separators: data.separators,
     };
     if (g.radial) {
       var reach = span * 1.04;
@@ -848,7 +963,7 @@
       layout.yaxis = { range: [-reach, reach], visible: false, scaleanchor: "x",
         fixedrange: false };
     } else {
-      var xTitle = state.lengths === "equal" ? "Steps from the root" : data.tree.x_title || "";
+      var xTitle = state.lengths === "equal" ? words.steps : data.tree.x_title || "";
       var xRange = g.age ? [g.maxDepth + span * 0.03, -span * 0.01]
         : [-span * 0.03, g.maxDepth + span * (state.contacts && data.contacts.length ? 0.12 : 0.01)];
       layout.margin = { l: g.age ? labelPx : 16, r: g.age ? 16 : labelPx, t: 16, b: 56 };
@@ -884,7 +999,7 @@
       var shown = index.tips.filter(function (v) { return !fold.hidden[v] && !targets.has(v); });
       // The key shows the marker the discs stand for (a trace without points draws nothing).
       traces.push({ type: "scatter", mode: "markers", x: [null], y: [null], hoverinfo: "skip",
-        name: "Object (opens its page)", meta: "tips-key",
+        name: escapeText(words.tip), meta: "tips-key",
         marker: { size: 7, symbol: "circle", color: colours.link,
           line: { width: 1.5, color: colours.link } } });
       // As a marker of size 7 with a 1.5 px outline: radius 4.25 px, the fill 2.75 px.
@@ -946,6 +1061,22 @@
     toImageButtonOptions: { format: "svg", filename: "lineage-tree" },
   };
 
+  // CONFIG with plotly's tool bar titles in the page's language (plotly's own locale lookup:
+  // config.locale names an entry of config.locales whose dictionary maps its English titles).
+  function plotConfig(words) {
+    var dictionary = {};
+    PLOTLY_KEYS.forEach(function (key) {
+      if (words[key] !== WORDS[key]) dictionary[WORDS[key]] = words[key];
+    });
+    var config = Object.assign({}, CONFIG);
+    if (Object.keys(dictionary).length) {
+      config.locale = PAGE_LANG;
+      config.locales = {};
+      config.locales[PAGE_LANG] = { dictionary: dictionary };
+    }
+    return config;
+  }
+
   // The plot box is a labelled group (role="group": an image role may not hold plotly's tool
   // bar buttons); the page's own form controls do everything the plot can, so plotly's tool
   // bar stays out of the tab order.
@@ -975,15 +1106,18 @@
       o.textContent = text;
       select.appendChild(o);
     }
+    var words = data.words;
     if (!c) {
-      add("most", state.shade === "changes" ? "All traits together" : "Choose a trait first");
+      add("most", state.shade === "changes" ? words.allTraits : words.chooseTrait);
       select.disabled = true;
       state.mode = "most";
       return;
     }
-    add("most", "Most probable state");
-    for (var s = 0; s < c.k; s++) add("p" + s, "Probability of " + stateWords(c, s));
-    add("changes", "Changes per branch (this trait)");
+    add("most", words.mostOption);
+    for (var s = 0; s < c.k; s++) {
+      add("p" + s, say(words.probOption, { state: stateWords(c, s, words) }));
+    }
+    add("changes", words.changesOption);
     select.disabled = false;
     select.value = state.mode;
     if (select.value !== state.mode) {
@@ -1053,7 +1187,8 @@
     on(collapse, "input", function () {
       state.collapse = Number(collapse.value) || 0;
       if (collapseValue) {
-        collapseValue.textContent = state.collapse > 0 ? state.collapse.toFixed(2) : "none";
+        collapseValue.textContent = state.collapse > 0 ? localNumber(state.collapse, 2, 2)
+          : data.words.noCollapse;
       }
       redraw();
     });
@@ -1076,12 +1211,11 @@
       state.found = findTips(data, query);
       if (status) {
         var n = state.found.length;
-        status.textContent = !query ? "Type part of an object's name to find it."
-          : n === 0 ? "No object matches \u201c" + query + "\u201d."
-          : n === 1 ? "Found " + tipName(data.nodes[state.found[0]], data.words) +
-            "; its path to the root is highlighted."
-          : "Found " + n + " objects matching \u201c" + query +
-            "\u201d; their paths to the root are highlighted.";
+        var words = data.words;
+        status.textContent = !query ? words.findPrompt
+          : n === 0 ? say(words.findNone, { query: query })
+          : n === 1 ? say(words.findOne, { name: tipName(data.nodes[state.found[0]], words) })
+          : say(words.findMany, { n: localNumber(n, 0, 0), query: query });
       }
       redraw();
     });
@@ -1095,7 +1229,7 @@
         state.mode = "most";
         state.found = [];
         state.contacts = contacts ? contacts.checked : true;
-        if (collapseValue) collapseValue.textContent = "none";
+        if (collapseValue) collapseValue.textContent = data.words.noCollapse;
         if (status) status.textContent = "";
         fillStateSelect(mode, data, state);
         redraw();
@@ -1123,6 +1257,7 @@
       states: validStates(atlasData.states, nodes.length),
       contacts: validContacts(atlasData.contacts, nodes.length),
       words: interfaceWords(div),
+      separators: separators(),
     };
     var highlight = (div.dataset.highlight || "").split(/\s+/).filter(Boolean);
     var state = {
@@ -1138,6 +1273,7 @@
       paper: false,
     };
 
+    var config = plotConfig(data.words);
     var baseHeight = null;
     var shown = null; // the figure on screen
     // mode: "first" (newPlot), "screen" (redraw after a change) or "paper" (fixed size, black
@@ -1178,7 +1314,8 @@
       div.dataset.shade = state.shade ? state.shade + ":" + state.mode : "";
       div.dataset.layout = state.layout;
       shown = fig;
-      return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout, CONFIG);
+      return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout,
+        config);
     }
 
     // After a zoom (or anything else that changed the plot's scale) the tip discs are redrawn
