@@ -149,7 +149,7 @@ def render_languages(atlas: Atlas, results: Results, step: Callable[[str], None]
         prefix = prefix_of(atlas, lang)
         step(f"Planning pages ({lang})" if len(languages) > 1 else "Planning pages")
         plan = plan_site(localise(atlas, lang, translator(lang)), results,
-                         jobs=render_options.get("jobs", 1))
+                         jobs=render_options.get("jobs", 1), cache=render_options.get("cache"))
         site = make_site(plan, lang, switch, prefix)
         step(f"Rendering {len(plan.pages)} pages" + (f" ({lang})" if len(languages) > 1 else ""))
         html = render_site(plan, theme, site, **render_options)
