@@ -13,17 +13,24 @@ from __future__ import annotations
 import hashlib
 import posixpath
 import re
-from dataclasses import dataclass
+from html import unescape
 from html.parser import HTMLParser
+from sys import intern
+from typing import NamedTuple
 from urllib.parse import unquote, urlsplit
+
+import ahocorasick
 
 from .cache import Cache, code_fingerprint
 from .errors import Problem
+from .parallel import map_forked
 
 _EXTERNAL = re.compile(r"^([a-z][a-z0-9+.-]*:|//)", re.I)
 
 
 class _Collect(HTMLParser):
+    """The reference reader (the standard library's HTML parser): slow, kept for tests."""
+
     def __init__(self) -> None:
         super().__init__(convert_charrefs=True)
         self.ids: set[str] = set()
@@ -32,34 +39,86 @@ class _Collect(HTMLParser):
     def handle_starttag(self, tag, attrs):
         line = self.getpos()[0]
         for name, value in attrs:
-            if value is None:
-                continue
-            if name == "id":
-                self.ids.add(value)
-            elif name in ("href", "src") or (name == "xlink:href"):
-                self.refs.append((tag, name, value, line))
-            elif name == "srcset":
-                for part in value.split(","):
-                    if part.strip():
-                        self.refs.append((tag, "srcset", part.split()[0], line))
+            _collect(tag, name, value, line, self.ids, self.refs)
 
     handle_startendtag = handle_starttag
 
 
-def _parse(html: str) -> _Collect:
+def _collect(tag: str, name: str, value: str | None, line: int, ids: set[str],
+             refs: list[tuple[str, str, str, int]]) -> None:
+    if value is None:
+        return
+    if name == "id":
+        ids.add(value)
+    elif name in ("href", "src", "xlink:href"):
+        refs.append((tag, name, value, line))
+    elif name == "srcset":
+        for part in value.split(","):
+            if part.strip():
+                refs.append((tag, "srcset", part.split()[0], line))
+
+
+def _parse_reference(html: str) -> tuple[set[str], list[tuple[str, str, str, int]]]:
     c = _Collect()
     c.feed(html)
     c.close()
-    return c
+    return c.ids, c.refs
 
 
-@dataclass(frozen=True)
-class _Links:
+# One pass over a page: comments, CDATA, declarations and the raw text of script and style
+# elements are matched whole (so nothing inside them counts as a tag); any other start tag
+# yields its name and attribute text. Equal to the reference reader on everything the site
+# writes (tests/test_audit_scan.py compares them on whole builds); 4,772 pages and figures
+# (93 MB) of the 400-object synthetic atlas: reference reader 52 s, this scan 4.6 s, same run.
+_ATTRS = r"""((?:[^>"']|"[^"]*"|'[^']*')*)"""
+_LAZY = r"""(?:[^>"']|"[^"]*"|'[^']*')*?"""
+_SCAN = re.compile(
+    r"<!--.*?-->|<!\[CDATA\[.*?\]\]>|<[!?][^>]*>"
+    r"|<(script|style)\b" + _ATTRS + r">.*?</\1\s*>"
+    r"|<([a-z][^\s/>]*)(?=\s)(" + _LAZY + r"\s(?:id|href|src|srcset|xlink:href)\s*="
+    + _ATTRS[1:-1] + r")/?>",
+    re.I | re.S)
+_ATTR = re.compile(r"""([^\s"'>/=]+)(?:\s*=\s*("[^"]*"|'[^']*'|[^\s>]+))?""")
+_WANTED = re.compile(r"\b(?:id|href|src|srcset)\s*=", re.I)
+
+
+def _parse(html: str) -> tuple[set[str], list[tuple[str, str, str, int]]]:
+    """The ``id`` values and the references (tag, attribute, value, line) of one page."""
+    ids: set[str] = set()
+    refs: list[tuple[str, str, str, int]] = []
+    line, last = 1, 0
+    for m in _SCAN.finditer(html):
+        tag, attrs = (m.group(1), m.group(2)) if m.group(1) else (m.group(3), m.group(4))
+        if not attrs or not _WANTED.search(attrs):
+            continue
+        line += html.count("\n", last, m.start())
+        last = m.start()
+        tag = intern(tag.lower())  # one object per name: results pickle compactly
+        for a in _ATTR.finditer(attrs):
+            value = a.group(2)
+            if value is not None:
+                if value[:1] in "\"'" and len(value) > 1 and value[0] == value[-1]:
+                    value = value[1:-1]
+                value = unescape(value) if "&" in value else value
+            _collect(tag, intern(a.group(1).lower()), value, line, ids, refs)
+    return ids, refs
+
+
+class _Links(NamedTuple):  # a tuple: pickles (to the cache, from workers) 3x faster
     ids: frozenset[str]
     refs: tuple[tuple[str, str, str, int], ...]
 
 
-def _parse_all(files: dict[str, bytes], cache: Cache | None) -> dict[str, _Links]:
+def _parse_files(files: dict[str, bytes], names: list[str]) -> list[_Links]:
+    out = []
+    for p in names:
+        ids, refs = _parse(files[p].decode("utf-8"))
+        out.append(_Links(frozenset(ids), tuple(refs)))
+    return out
+
+
+def _parse_all(files: dict[str, bytes], cache: Cache | None, jobs: int = 1
+               ) -> dict[str, _Links]:
     """Parsed ids and references of every page and SVG; with a ``cache``, a file parsed before
     (same bytes) is not parsed again: 4,772 pages and figures (93 MB) of the 400-object
     synthetic atlas, on a loaded 2-core machine, 204 s parsed -> 14 s from the cache."""
@@ -70,11 +129,13 @@ def _parse_all(files: dict[str, bytes], cache: Cache | None) -> dict[str, _Links
     stored = cache.get("audit", kind_key) if cache.enabled else None
     stored = stored if isinstance(stored, dict) else {}
     out, fresh = {}, {}
+    todo = [p for p in names if not digests or digests[p] not in stored]
+    jobs = jobs if len(todo) >= 100 else 1  # a few pages: not worth a fork
+    chunks = [todo[c::jobs * 4] for c in range(jobs * 4)] if jobs > 1 else [todo]
+    for chunk, parsed in zip(chunks, map_forked(_parse_files, files, chunks, jobs)):
+        out.update(zip(chunk, parsed))
     for p in names:
-        hit = stored.get(digests[p]) if digests else None
-        if hit is None:
-            parsed = _parse(files[p].decode("utf-8"))
-            hit = _Links(frozenset(parsed.ids), tuple(parsed.refs))
+        hit = out[p] if p in out else stored[digests[p]]
         out[p] = hit
         if digests:
             fresh[digests[p]] = hit
@@ -83,9 +144,11 @@ def _parse_all(files: dict[str, bytes], cache: Cache | None) -> dict[str, _Links
     return out
 
 
-def audit_links(files: dict[str, bytes], cache: Cache | None = None) -> list[Problem]:
-    """Every problem with links in a built site (paths are relative to the site root)."""
-    pages = _parse_all(files, cache)
+def audit_links(files: dict[str, bytes], cache: Cache | None = None, jobs: int = 1
+                ) -> list[Problem]:
+    """Every problem with links in a built site (paths are relative to the site root); pages
+    are read in ``jobs`` forked processes (:mod:`atlas.parallel`)."""
+    pages = _parse_all(files, cache, jobs)
     problems: list[Problem] = []
     for path, parsed in sorted(pages.items()):
         for tag, attr, value, line in parsed.refs:
@@ -115,24 +178,45 @@ def audit_links(files: dict[str, bytes], cache: Cache | None = None) -> list[Pro
     return problems
 
 
+def _word_char(ch: str) -> bool:
+    return ch.isalnum() or ch in "_-"  # what ``[\w-]`` matches in a ``str`` regex
+
+
 def audit_leaks(files: dict[str, bytes], canaries: tuple[str, ...]) -> list[Problem]:
-    """Every output file that contains text of a withheld item (ids as whole words)."""
+    """Every output file that contains text of a withheld item (ids as whole words).
+
+    All canaries are looked for in one pass per file with an Aho-Corasick automaton
+    (pyahocorasick); an id counts only where no letter, digit, ``_`` or ``-`` touches it, so
+    ``ob-1`` is not found in ``ob-12``. The line reported is that of the first occurrence.
+    Measured on the 400-object synthetic atlas (4,793 files, 135 MB, 17 canaries), same
+    machine: one regular expression of all canaries 56 s, the automaton 1.3 s.
+    """
     if not canaries:
         return []
-    words = [c for c in canaries if re.fullmatch(r"[\w.-]+", c)]
-    phrases = [c for c in canaries if c not in words]
-    pattern = re.compile(
-        "|".join([r"(?<![\w-])" + re.escape(w) + r"(?![\w-])" for w in words]
-                 + [re.escape(p) for p in phrases]))
+    words = {c for c in canaries if re.fullmatch(r"[\w.-]+", c)}
+    automaton = ahocorasick.Automaton()
+    for c in canaries:
+        if c:
+            automaton.add_word(c, c)
+    if not len(automaton):
+        return []
+    automaton.make_automaton()
     problems = []
     for path in sorted(files):
-        data = files[path]
-        text = data.decode("utf-8", "replace")
-        found = pattern.search(text)
-        if found:
-            line = text.count("\n", 0, found.start()) + 1
+        text = files[path].decode("utf-8", "replace")
+        first: tuple[int, str] | None = None
+        for end, c in automaton.iter(text):
+            start = end - len(c) + 1
+            if first is not None and start >= first[0]:
+                continue
+            if c in words and ((start > 0 and _word_char(text[start - 1]))
+                               or (end + 1 < len(text) and _word_char(text[end + 1]))):
+                continue
+            first = (start, c)
+        if first is not None:
+            line = text.count("\n", 0, first[0]) + 1
             problems.append(Problem(path, line, "contains text the build profile withholds "
-                                    f"({found.group(0)[:40]!r}); nothing was written"))
+                                    f"({first[1][:40]!r}); nothing was written"))
     return problems
 
 

@@ -112,7 +112,7 @@ def build(root: Path | str, out: Path | str | None = None, profile: str = "publi
                                      if not p.startswith("assets/")}}, atlas.withheld_text)
     if leaks:
         raise AtlasError(leaks)
-    link_problems = audit_links(all_files, cache)
+    link_problems = audit_links(all_files, cache, jobs)
     weight = audit_budget(files, config.page_budget) + audit_plotly(files)
     if weight:
         raise AtlasError(weight)

@@ -68,8 +68,9 @@ def study_stats(atlas: Atlas, results: Results) -> dict:
         })
     discrete = atlas.discrete
     borrowing = [{
+        # node ids (their members are under "nodes") or object ids: members are not repeated
+        # here, since a large study has tens of thousands of candidates
         "a": results.ids[c.a], "b": results.ids[c.b],
-        "a_members": list(results.members[c.a]), "b_members": list(results.members[c.b]),
         "characters": [discrete[j].id for j in c.characters], "score": _num(c.score),
         "distance_km": _num(c.distance, 1) if c.distance is not None else None,
     } for c in diag.borrowing if not _touches_withheld(atlas, results, c)]

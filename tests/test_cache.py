@@ -66,6 +66,12 @@ CHANGES = [  # (what, file, old text, new text); applied one after the other
     ("matrix", "matrix.csv", "spoon-c,0,1,0,0", "spoon-c,0,1,1,0"),
     ("gazetteer", "places.csv", "-31.80,-15.05", "-31.95,-15.25"),
     ("object note", "objects/spoon-b.md", "so it is coded unknown", "so it is coded as unknown"),
+    # the title shows on tree, clade and place pages, which the plan cache keeps across edits
+    # of note text only: a new title must reach them
+    ("object title", "objects/spoon-b.md", "title: Spoon with hooked handle and plain rim",
+     "title: Spoon with a hooked handle"),
+    ("object place", "objects/spoon-b.md", "place: brinmoor\naccess: public\n---\nA second",
+     "place: calder-end\naccess: public\n---\nA second"),
     ("character note", "characters/hook.md", "label: Hooked handle end", "label: Hook at the end"),
     ("clade note", "clades/hooked.md", "title:", "title: Renamed"),
     ("free page", "pages/about.md", "invented", "made up"),
@@ -126,3 +132,22 @@ def test_output_is_identical_for_any_number_of_jobs(source, tmp_path, monkeypatc
         build(source, tmp_path / f"jobs-{jobs}", jobs=jobs, use_cache=False)
         outputs.append(_files(tmp_path / f"jobs-{jobs}"))
     assert outputs[0] == outputs[1] == outputs[2]
+
+
+def test_an_edit_of_note_text_reuses_the_plan_of_tree_clade_and_character_pages(
+        source, tmp_path, monkeypatch):
+    from atlas.site import plan
+
+    calls = []
+    real = plan._note_free_plan
+    monkeypatch.setattr(plan, "_note_free_plan", lambda *a: calls.append(1) or real(*a))
+    build(source, tmp_path / "a", use_cache=True)
+    assert len(calls) == 1
+    _edit(source, "objects/spoon-b.md", "so it is coded unknown", "so it is coded as unknown")
+    build(source, tmp_path / "b", use_cache=True)
+    assert len(calls) == 1  # note text only: taken from the cache
+    assert "coded as unknown" in (tmp_path / "b" / "objects" / "spoon-b.html").read_text("utf-8")
+    _edit(source, "objects/spoon-b.md", "title: Spoon with hooked handle and plain rim",
+          "title: Spoon with a hooked handle")
+    build(source, tmp_path / "c", use_cache=True)
+    assert len(calls) == 2  # a title shows on clade pages: planned again

@@ -15,6 +15,7 @@ linked atlas and its summary tree:
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 from dataclasses import dataclass
 
@@ -108,7 +109,29 @@ def _delta(atlas: Atlas) -> tuple[DeltaScores | None, tuple[int, ...]]:
 
 
 def diagnose(atlas: Atlas, tree: Tree, changes: Changes | None, probs: np.ndarray,
-             members_mask: list[int], fitted: bool) -> Diagnostics:
+             members_mask: list[int], fitted: bool, early: Diagnostics | None = None
+             ) -> Diagnostics:
+    """Every diagnostic of the summary tree; ``early`` is :func:`diagnose_tree` of the same
+    inputs when already computed (the build runs it in another process while the states are
+    averaged over the sample, since only the rule checks need those states)."""
+    base = early if early is not None else diagnose_tree(atlas, tree, changes, members_mask)
+    violations: tuple[Violation, ...] = ()
+    if atlas.rules and fitted:
+        states_by_node = {}
+        for v in range(tree.n_nodes):
+            if tree.tip[v] >= 0:
+                continue
+            states_by_node[v] = {
+                c.id: c.symbols[int(np.argmax(probs[v, c.column, : len(c.symbols)]))]
+                for c in atlas.discrete}
+        violations = tuple(check_rules(atlas.rules, states_by_node))
+    return dataclasses.replace(base, violations=violations)
+
+
+def diagnose_tree(atlas: Atlas, tree: Tree, changes: Changes | None,
+                  members_mask: list[int]) -> Diagnostics:
+    """Delta scores, clade ranges, borrowing candidates, changes from the root and the Mantel
+    test: everything :func:`diagnose` gives but the rule checks."""
     lats, lons = coordinates(atlas)
     scores, delta_taxa = _delta(atlas)
 
@@ -140,17 +163,6 @@ def diagnose(atlas: Atlas, tree: Tree, changes: Changes | None, probs: np.ndarra
         borrowing = tuple(borrowing_candidates(tree, changes, pair_distance=pair_distance))
         from_root = changes_from_root(tree, changes)
 
-    violations: tuple[Violation, ...] = ()
-    if atlas.rules and fitted:
-        states_by_node = {}
-        for v in range(tree.n_nodes):
-            if tree.tip[v] >= 0:
-                continue
-            states_by_node[v] = {
-                c.id: c.symbols[int(np.argmax(probs[v, c.column, : len(c.symbols)]))]
-                for c in atlas.discrete}
-        violations = tuple(check_rules(atlas.rules, states_by_node))
-
     mantel_result = None
     mapped = np.isfinite(lats)
     if mapped.sum() >= 4:
@@ -160,5 +172,4 @@ def diagnose(atlas: Atlas, tree: Tree, changes: Changes | None, probs: np.ndarra
             mantel_result = mantel(geo, pat, permutations=999, seed=atlas.config.analysis["seed"])
         except AtlasError:
             mantel_result = None
-    return Diagnostics(scores, delta_taxa, borrowing, from_root, violations, mantel_result,
-                       ranges)
+    return Diagnostics(scores, delta_taxa, borrowing, from_root, (), mantel_result, ranges)

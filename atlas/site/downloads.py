@@ -141,13 +141,19 @@ def _relabelled(tree: Tree, labels: Mapping[str, str]) -> tuple[Tree, np.ndarray
                 tuple(tree.label[v] for v in order)), np.array(order)
 
 
-def trees_newick(atlas: Atlas, labels: Mapping[str, str]) -> str:
-    """The sampled trees after burn-in, one Newick line each."""
-    return "".join(write_newick(_relabelled(t, labels)[0]) + "\n" for t in atlas.sample.trees)
+def trees_newick(atlas: Atlas, labels: Mapping[str, str], newicks: list[str] | None = None
+                 ) -> str:
+    """The sampled trees after burn-in, one Newick line each (``newicks``: already written)."""
+    if newicks is None:
+        newicks = [write_newick(_relabelled(t, labels)[0]) for t in atlas.sample.trees]
+    return "".join(n + "\n" for n in newicks)
 
 
-def trees_nexus(atlas: Atlas, labels: Mapping[str, str]) -> str:
+def trees_nexus(atlas: Atlas, labels: Mapping[str, str], newicks: list[str] | None = None
+                ) -> str:
     """The sampled trees after burn-in as NEXUS: a TAXA block and a TREES block."""
+    if newicks is None:
+        newicks = [write_newick(_relabelled(t, labels)[0]) for t in atlas.sample.trees]
     taxa = sorted((labels.get(t, t) for t in atlas.taxa), key=_label_order)
     sample = atlas.sample
     title = re.sub(r"[\[\]]", "", atlas.config.title)
@@ -161,8 +167,8 @@ def trees_nexus(atlas: Atlas, labels: Mapping[str, str]) -> str:
         "END;",
         "BEGIN TREES;",
     ]
-    for k, tree in enumerate(sample.trees, 1):
-        lines.append(f"  TREE tree_{k} = [&R] {write_newick(_relabelled(tree, labels)[0])}")
+    for k, newick in enumerate(newicks, 1):
+        lines.append(f"  TREE tree_{k} = [&R] {newick}")
     lines += ["END;", ""]
     return "\n".join(lines)
 
@@ -205,7 +211,35 @@ def places_geojson(atlas: Atlas, labels: Mapping[str, str]) -> str:
 
 
 def stats_json(stats: dict, labels: Mapping[str, str]) -> str:
-    return _json(relabel(stats, labels))
+    """The study's numbers as JSON, one record per line inside each top-level list.
+
+    Lines keep the file easy to read and to diff, and each record is written by the standard
+    library's C encoder (``indent`` would switch to its pure-Python one): on the 400-object
+    synthetic atlas (21.7 MB indented), 3.5 s indented, 1.3 s by records, same run.
+    """
+    if any(k != v for k, v in labels.items()):
+        stats = relabel(stats, labels)
+    else:  # nothing to rename: only non-finite numbers, which the encoder refuses below
+        try:
+            return _records(stats)
+        except ValueError:
+            stats = relabel(stats, labels)
+    return _records(stats)
+
+
+def _records(value: dict) -> str:
+    def one(v) -> str:
+        return json.dumps(v, ensure_ascii=False, sort_keys=True, allow_nan=False)
+
+    lines = []
+    for key in sorted(value):
+        v = value[key]
+        if isinstance(v, list) and v:
+            body = ",\n".join("  " + one(item) for item in v)
+            lines.append(f" {one(key)}: [\n{body}\n ]")
+        else:
+            lines.append(f" {one(key)}: {one(v)}")
+    return "{\n" + ",\n".join(lines) + "\n}\n"
 
 
 def _json(value) -> str:
@@ -484,29 +518,49 @@ def _size(n: int) -> str:
     return f"{n} bytes" if n < 1000 else f"{n / 1000:.1f} kB"
 
 
-def downloads_plan(atlas: Atlas, results: Results, links: Links, stats: dict, *,
-                   released: dt.date | None = None) -> tuple[PagePlan, dict[str, str]]:
-    """The downloads page (``downloads/index.html``) and its files (path -> text).
+def download_texts(atlas: Atlas, results: Results, stats: dict, *,
+                   released: dt.date | None = None) -> dict[str, str]:
+    """The downloadable files (name -> text): citations, matrix, trees, places and stats.
 
     ``stats`` is :func:`atlas.stats.study_stats` of the same atlas and results; ``released``
-    the date from :func:`release_date` (None: no date is written anywhere).
+    the date from :func:`release_date` (None: no date is written anywhere). The sampled trees
+    are relabelled and written once for both the Newick and the NEXUS file.
     """
     config = atlas.config
     labels = public_labels(atlas)
-    version = str(getattr(config, "version", "") or "")
-    url = _base(config.base_url)
-    cite = {"version": version, "released": released, "url": url}
-    texts = {
+    cite = _cite(atlas, released)
+    newicks = [write_newick(_relabelled(t, labels)[0]) for t in atlas.sample.trees]
+    return {
         "CITATION.cff": citation_cff(config.title, config.authors, config.licence, **cite),
         "atlas.bib": citation_bibtex(config.title, config.authors, config.licence, **cite),
         "matrix.csv": matrix_csv(atlas, labels),
         **({"evidence.csv": evidence_csv(atlas, labels)} if atlas.evidence else {}),
-        "trees.nex": trees_nexus(atlas, labels),
-        "trees.nwk": trees_newick(atlas, labels),
+        "trees.nex": trees_nexus(atlas, labels, newicks),
+        "trees.nwk": trees_newick(atlas, labels, newicks),
         "summary.nwk": summary_newick(atlas, results, labels),
         "places.geojson": places_geojson(atlas, labels),
         "stats.json": stats_json(stats, labels),
     }
+
+
+def _cite(atlas: Atlas, released: dt.date | None) -> dict:
+    version = str(getattr(atlas.config, "version", "") or "")
+    return {"version": version, "released": released, "url": _base(atlas.config.base_url)}
+
+
+def downloads_plan(atlas: Atlas, results: Results, links: Links, stats: dict | None = None, *,
+                   released: dt.date | None = None, texts: dict[str, str] | None = None
+                   ) -> tuple[PagePlan, dict[str, str]]:
+    """The downloads page (``downloads/index.html``) and its files (path -> text).
+
+    ``texts`` are the files from :func:`download_texts` when already made (e.g. in another
+    process); otherwise they are made here from ``stats`` and ``released``.
+    """
+    config = atlas.config
+    if texts is None:
+        assert stats is not None, "give the stats or the texts"
+        texts = download_texts(atlas, results, stats, released=released)
+    cite = _cite(atlas, released)
     root = root_of(PAGE)
     _ = atlas.i18n.gettext
     files = [{"href": name, "label": _(_DESCRIPTIONS[name][0]), "about": _(_DESCRIPTIONS[name][1]),

@@ -163,7 +163,8 @@ def render_languages(atlas: Atlas, results: Results, step: Callable[[str], None]
     for lang in languages:
         prefix = prefix_of(atlas, lang)
         step(f"Planning pages ({lang})" if len(languages) > 1 else "Planning pages")
-        plan = plan_site(localise(atlas, lang, translator(lang)), results)
+        plan = plan_site(localise(atlas, lang, translator(lang)), results,
+                         jobs=render_options.get("jobs", 1), cache=render_options.get("cache"))
         site = make_site(plan, lang, switch, prefix)
         step(f"Rendering {len(plan.pages)} pages" + (f" ({lang})" if len(languages) > 1 else ""))
         html = render_site(plan, theme, site, **render_options)

@@ -7,12 +7,15 @@ from __future__ import annotations
 
 import json
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from importlib import resources
 from pathlib import Path
 
 from ..analysis.results import Results
+from ..cache import Cache, Hasher, analysis_key
+from ..i18n import catalogue_path
 from ..model import Atlas
+from ..parallel import Background
 from ..stats import study_stats
 from . import (
     downloads,
@@ -144,9 +147,40 @@ def static_maps(atlas: Atlas, links: Links, places: list[dict]) -> dict[str, str
     return files
 
 
-def plan_site(atlas: Atlas, results: Results) -> SitePlan:
-    links = views.make_links(atlas, results)
-    notes_by_node = views.clade_notes_by_node(atlas, results)
+@dataclass(frozen=True)
+class NoteFree:
+    """The part of a plan that no object note's text can change (see :func:`note_free_key`)."""
+
+    layout: object  # the tree layout, which object pages need too
+    pages: dict[str, list[PagePlan]]  # "tree", "map", "nodes", "characters", "places"
+    method_figures: object
+    data: dict[str, str]
+    files: dict[str, str]
+
+
+def note_free_key(atlas: Atlas) -> str:
+    """The key of :func:`_note_free_plan`: the atlas as linked, in its language, with the text
+    of every object note (body and translated bodies) left out, and the analysis key (which
+    stands for the results). Titles, places, access and images of objects stay in: the tree,
+    clade, character and place pages show them.
+    """
+    objects = {oid: replace(o, body="", translations={
+        lang: {k: ("" if k == "body" else v) for k, v in t.items()}
+        for lang, t in o.translations.items()}) for oid, o in atlas.objects.items()}
+    catalogue = catalogue_path(atlas.i18n.lang)
+    h = Hasher(analysis_key(atlas), atlas.i18n.lang,
+               catalogue.read_bytes() if catalogue.is_file() else b"")
+    h.add(repr((atlas.config, atlas.profile, objects, atlas.characters, atlas.cells,
+                atlas.places, atlas.clade_notes, atlas.pages, atlas.contacts, atlas.rules,
+                atlas.withheld_text, atlas.evidence)))
+    h.add(sorted((name, path.stat().st_size, path.stat().st_mtime_ns) if path.is_file()
+                 else (name, -1, -1) for name, path in atlas.media.items()))
+    h.add(json.dumps(atlas.basemap, sort_keys=True))
+    return h.hexdigest()
+
+
+def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node: dict
+                    ) -> NoteFree:
     tree = results.tree
     labels, hrefs = [], []
     withheld = set()
@@ -162,55 +196,30 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
             hrefs.append(links.nodes[nid])
     layout, use_lengths = tree_layout(tree, results.ids, labels, hrefs, results.summary.support,
                                       withheld)
-
     colours, legend = lineage_colours(atlas, results, notes_by_node)
     study_view = statemaps.study_view(atlas)  # the window of the layered static maps
     state_rows = {c.id: statemaps.state_rows(atlas, c) for c in atlas.discrete}  # used twice
     method_figures, method_files = statfigures.methods_figures(atlas, results)
-    pages: list[PagePlan] = [
-        overview.home_page(atlas, results, links, notes_by_node),
-        treedata.tree_page_plot(
-            overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas),
-        overview.map_page(atlas, results, links, legend),
-        *paging.paged_glossary(views.glossary_page(atlas, results, links),
-                               atlas.i18n.gettext("Glossary")),
-        statfigures.methods_page_figures(
-            overview.methods_page(atlas, results, links, notes_by_node), method_figures),
-        overview.credits_page(atlas, links),
-        overview.data_page(atlas, links),
-    ]
-    for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):
-        pages += paging.paged(views.object_page(atlas, results, links, layout, obj,
-                                                notes_by_node), "object",
-                              atlas.i18n.gettext("Traits as coded"))
+    pages: dict[str, list[PagePlan]] = {
+        "tree": [treedata.tree_page_plot(
+            overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas)],
+        "map": [overview.map_page(atlas, results, links, legend)],
+        "nodes": [], "characters": [], "places": []}
     for v, nid in enumerate(results.ids):
         if tree.tip[v] < 0:
             node = views.node_page(atlas, results, links, layout, v, notes_by_node)
             if node.context["place_ids"]:  # a map of the clade's places
                 node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
                 node = statemaps.node_page_map(node, atlas, results, v, study_view)
-            pages += paging.paged(node, "node", atlas.i18n.gettext("Reconstructed traits"))
-            pages.append(views.brief_page(atlas, results, links, v, notes_by_node))
+            pages["nodes"] += paging.paged(node, "node",
+                                           atlas.i18n.gettext("Reconstructed traits"))
+            pages["nodes"].append(views.brief_page(atlas, results, links, v, notes_by_node))
     for c in atlas.characters:
-        pages.append(statemaps.character_page_map(treedata.character_page_plot(
+        pages["characters"].append(statemaps.character_page_map(treedata.character_page_plot(
             views.character_page(atlas, results, links, c, notes_by_node), c),
             atlas, links, c, study_view, state_rows.get(c.id)))
     for pid in sorted(atlas.places):
-        pages.append(overview.place_page(atlas, results, links, pid))
-    for page in atlas.pages:
-        pages.append(overview.free_page(atlas, links, page))
-
-    search_page, search_data = search.search_plan(atlas, results, links)
-    pages.append(search_page)
-    download_files: dict[str, str] = {}
-    if not atlas.profile.kiosk:  # the kiosk offers no downloads
-        downloads_page, download_files = downloads.downloads_plan(
-            atlas, results, links, study_stats(atlas, results),
-            released=downloads.release_date(os.environ))
-        pages.append(downloads_page)
-    # Only images that a published page shows are published: restricted ones never leave.
-    media, variants = images.publish_images(atlas)
-    pages = [images.with_srcset(p, variants) for p in pages]
+        pages["places"].append(overview.place_page(atlas, results, links, pid))
 
     mapped = places_data(atlas, links, results, colours)
     data = {
@@ -222,14 +231,80 @@ def plan_site(atlas: Atlas, results: Results) -> SitePlan:
         statemaps.MATRIX_SCRIPT: js_global("matrix", statemaps.matrix_data(atlas)),
     }
     data.update(treedata.data_files(atlas, results))  # data/states.js, data/contacts.js
-    data.update(search_data)
-    copies = {"assets/plotly.min.js": plotly_js()}
     _ = atlas.i18n.gettext
     files = {"figures/tree.svg": tree_svg(layout, "../", title=_("Lineage tree of {title}")
                                           .format(title=atlas.config.title), standalone=True)}
     files.update(static_maps(atlas, links, mapped))
     files.update(statemaps.layered_files(atlas, results, links, study_view, state_rows))
     files.update(method_files)
+    return NoteFree(layout, pages, method_figures, data, files)
+
+
+def _download_files(shared: tuple) -> dict[str, str]:
+    atlas, results, released = shared
+    return downloads.download_texts(atlas, results, study_stats(atlas, results),
+                                    released=released)
+
+
+def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None = None
+              ) -> SitePlan:
+    """Every page, data script and file of the site in one language.
+
+    With ``jobs > 1`` the downloadable files (a third of the planning time of a large atlas:
+    the stats, every sampled tree relabelled and written) are made in a forked process while
+    this one plans the pages (:class:`atlas.parallel.Background`). With a ``cache``, the part
+    of the plan that object notes cannot change (:func:`_note_free_plan`) is stored under
+    :func:`note_free_key` and taken from there when only notes were edited.
+    """
+    released = downloads.release_date(os.environ)
+    offline = None
+    if not atlas.profile.kiosk:  # the kiosk offers no downloads
+        offline = Background(_download_files, (atlas, results, released), enabled=jobs > 1)
+    links = views.make_links(atlas, results)
+    notes_by_node = views.clade_notes_by_node(atlas, results)
+    cache = cache or Cache()
+    key = note_free_key(atlas) if cache.enabled else ""
+    part = cache.get("plan", key) if cache.enabled else None
+    if not isinstance(part, NoteFree):
+        part = _note_free_plan(atlas, results, links, notes_by_node)
+        if cache.enabled:
+            cache.put("plan", key, part, keep=2)
+    layout = part.layout
+    pages: list[PagePlan] = [
+        overview.home_page(atlas, results, links, notes_by_node),
+        part.pages["tree"][0],
+        part.pages["map"][0],
+        *paging.paged_glossary(views.glossary_page(atlas, results, links),
+                               atlas.i18n.gettext("Glossary")),
+        statfigures.methods_page_figures(
+            overview.methods_page(atlas, results, links, notes_by_node), part.method_figures),
+        overview.credits_page(atlas, links),
+        overview.data_page(atlas, links),
+    ]
+    for obj in sorted(atlas.visible_objects(), key=lambda o: o.id):
+        pages += paging.paged(views.object_page(atlas, results, links, layout, obj,
+                                                notes_by_node), "object",
+                              atlas.i18n.gettext("Traits as coded"))
+    pages += part.pages["nodes"] + part.pages["characters"] + part.pages["places"]
+    for page in atlas.pages:
+        pages.append(overview.free_page(atlas, links, page))
+
+    search_page, search_data = search.search_plan(atlas, results, links)
+    pages.append(search_page)
+    download_files: dict[str, str] = {}
+    if offline is not None:
+        downloads_page, download_files = downloads.downloads_plan(
+            atlas, results, links, released=released, texts=offline.result())
+        pages.append(downloads_page)
+    # Only images that a published page shows are published: restricted ones never leave.
+    media, variants = images.publish_images(atlas)
+    pages = [images.with_srcset(p, variants) for p in pages]
+
+    data = dict(part.data)
+    data.update(search_data)
+    copies = {"assets/plotly.min.js": plotly_js()}
+    _ = atlas.i18n.gettext
+    files = dict(part.files)
     files.update(download_files)
     if not atlas.profile.kiosk:
         files.update(downloads.sitemap(atlas.config.base_url, pages))

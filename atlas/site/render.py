@@ -103,9 +103,15 @@ def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
     )
 
 
+_ENVIRONMENTS: dict[tuple, jinja2.Environment] = {}  # per process: templates compile once
+
+
 def render_all(theme: Theme, site: SiteInfo, pages: Sequence[PagePlan]) -> list[str]:
     """Render ``pages`` through one environment (in whichever process runs it)."""
-    env = environment(theme, site.language)
+    key = (theme.name, tuple(theme.folders), site.language)
+    env = _ENVIRONMENTS.get(key)
+    if env is None:
+        env = _ENVIRONMENTS[key] = environment(theme, site.language)
     html = [render_page(env, page, site) for page in pages]
     if site.kiosk:  # nothing leads out of the gallery kiosk
         html = [downloads.unlink_external(text) for text in html]

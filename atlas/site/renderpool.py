@@ -5,7 +5,7 @@ A page's key is the SHA-256 of everything its HTML depends on: the builder's own
 extends, the interface catalogue of the language, the site information (title, navigation,
 languages, kiosk settings) and the page itself (path, template, scripts and its whole context,
 pickled). Unchanged pages are taken from ``.atlas-cache/pages-<label>-<lang>/``; the others are
-rendered, in a process pool when ``jobs > 1`` (each worker builds its own Jinja environment).
+rendered, in forked processes when ``jobs > 1`` (each builds its Jinja environment once).
 Rendering is a pure function of those inputs, so the output is the same for any ``jobs`` and
 with or without the cache.
 """
@@ -16,11 +16,11 @@ import hashlib
 import pickle
 import re
 from collections.abc import Callable, Sequence
-from concurrent.futures import ProcessPoolExecutor
 from typing import TYPE_CHECKING
 
 from ..cache import Cache, Hasher
 from ..i18n import catalogue_path
+from ..parallel import map_forked
 
 if TYPE_CHECKING:
     from .render import SiteInfo, Theme
@@ -55,9 +55,9 @@ def page_key(base: str, page: PagePlan) -> str:
     return h.hexdigest()
 
 
-def _render_chunk(render_all: Callable, theme: Theme, site: SiteInfo,
-                  pages: Sequence[PagePlan]) -> list[str]:
-    return render_all(theme, site, pages)
+def _render_chunk(shared: tuple, chunk: Sequence[int]) -> list[str]:
+    render_all, theme, site, pages = shared
+    return render_all(theme, site, [pages[i] for i in chunk])
 
 
 def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
@@ -76,14 +76,13 @@ def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
     todo = [i for i, h in enumerate(html) if h is None]
     if todo:
         if jobs > 1 and len(todo) > 1:
+            # the pages are inherited by forked workers (see atlas.parallel), not pickled
             n = min(len(todo), jobs * 4)
             chunks = [todo[c::n] for c in range(n)]
-            with ProcessPoolExecutor(max_workers=jobs) as pool:
-                futures = [pool.submit(_render_chunk, render_all, theme, site,
-                                       [pages[i] for i in chunk]) for chunk in chunks]
-                for chunk, future in zip(chunks, futures):
-                    for i, text in zip(chunk, future.result()):
-                        html[i] = text
+            parts = map_forked(_render_chunk, (render_all, theme, site, pages), chunks, jobs)
+            for chunk, part in zip(chunks, parts):
+                for i, text in zip(chunk, part):
+                    html[i] = text
         else:
             for i, text in zip(todo, render_all(theme, site, [pages[i] for i in todo])):
                 html[i] = text
