@@ -257,13 +257,16 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
     :func:`note_free_key` and taken from there when only notes were edited.
     """
     released = downloads.release_date(os.environ)
+    cache = cache or Cache()
+    key = note_free_key(atlas) if cache.enabled else ""
     offline = None
-    if not atlas.profile.kiosk:  # the kiosk offers no downloads
+    # the downloads show no note text either: kept under the same key and the release date
+    texts_key = Hasher(key, repr(released)).hexdigest() if cache.enabled else ""
+    texts = cache.get("downloads", texts_key) if cache.enabled else None
+    if not atlas.profile.kiosk and not isinstance(texts, dict):  # the kiosk has no downloads
         offline = Background(_download_files, (atlas, results, released), enabled=jobs > 1)
     links = views.make_links(atlas, results)
     notes_by_node = views.clade_notes_by_node(atlas, results)
-    cache = cache or Cache()
-    key = note_free_key(atlas) if cache.enabled else ""
     part = cache.get("plan", key) if cache.enabled else None
     if not isinstance(part, NoteFree):
         part = _note_free_plan(atlas, results, links, notes_by_node)
@@ -292,9 +295,13 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
     search_page, search_data = search.search_plan(atlas, results, links)
     pages.append(search_page)
     download_files: dict[str, str] = {}
-    if offline is not None:
+    if not atlas.profile.kiosk:
+        if offline is not None:
+            texts = offline.result()
+            if cache.enabled:
+                cache.put("downloads", texts_key, texts, keep=2)
         downloads_page, download_files = downloads.downloads_plan(
-            atlas, results, links, released=released, texts=offline.result())
+            atlas, results, links, released=released, texts=texts)
         pages.append(downloads_page)
     # Only images that a published page shows are published: restricted ones never leave.
     media, variants = images.publish_images(atlas)

@@ -55,6 +55,11 @@ def page_key(base: str, page: PagePlan) -> str:
     return h.hexdigest()
 
 
+def _keys(shared: tuple, span: range) -> list[str]:
+    base, pages = shared
+    return [page_key(base, pages[i]) for i in span]
+
+
 def _render_chunk(shared: tuple, chunk: Sequence[int]) -> list[str]:
     render_all, theme, site, pages = shared
     return render_all(theme, site, [pages[i] for i in chunk])
@@ -68,7 +73,12 @@ def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
     cache = cache or Cache()
     kind = "pages-" + re.sub(r"[^A-Za-z0-9_.-]", "_", f"{label}-{site.language}")
     base = site_key(theme, site) if cache.enabled else ""
-    keys = [page_key(base, p) for p in pages] if cache.enabled else []
+    keys: list[str] = []
+    if cache.enabled:  # pickling every context to hash it is a third of a rebuild: share it
+        n = jobs * 4 if jobs > 1 and len(pages) >= 100 else 1
+        spans = [range(c * len(pages) // n, (c + 1) * len(pages) // n) for c in range(n)]
+        for part in map_forked(_keys, (base, pages), spans, jobs):
+            keys += part
     stored = cache.get(kind, base) if cache.enabled else None
     stored = stored if isinstance(stored, dict) else {}
     html: list[str | None] = [stored.get(k) if k else None for k in keys] if keys \
