@@ -233,7 +233,8 @@ def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node:
     data.update(treedata.data_files(atlas, results))  # data/states.js, data/contacts.js
     _ = atlas.i18n.gettext
     files = {"figures/tree.svg": tree_svg(layout, "../", title=_("Lineage tree of {title}")
-                                          .format(title=atlas.config.title), standalone=True)}
+                                          .format(title=atlas.config.title), standalone=True,
+                                          tr=atlas.i18n)}
     files.update(static_maps(atlas, links, mapped))
     files.update(statemaps.layered_files(atlas, results, links, study_view, state_rows))
     files.update(method_files)
