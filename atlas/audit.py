@@ -21,6 +21,7 @@ from urllib.parse import unquote, urlsplit
 
 import ahocorasick
 
+from . import parallel
 from .cache import Cache, code_fingerprint
 from .errors import Problem
 from .parallel import map_forked
@@ -130,7 +131,7 @@ def _parse_all(files: dict[str, bytes], cache: Cache | None, jobs: int = 1
     stored = stored if isinstance(stored, dict) else {}
     out, fresh = {}, {}
     todo = [p for p in names if not digests or digests[p] not in stored]
-    jobs = jobs if len(todo) >= 100 else 1  # a few pages: not worth a fork
+    jobs = jobs if len(todo) >= parallel.MIN_ITEMS else 1  # a few pages: not worth a fork
     chunks = [todo[c::jobs * 4] for c in range(jobs * 4)] if jobs > 1 else [todo]
     for chunk, parsed in zip(chunks, map_forked(_parse_files, files, chunks, jobs)):
         out.update(zip(chunk, parsed))

@@ -19,6 +19,10 @@ from collections.abc import Callable, Sequence
 from concurrent.futures import Future, ProcessPoolExecutor
 from typing import Any
 
+# Fewer work items than this are done in one process: forking costs more than it saves.
+# (Tests set it to 0 to run every parallel path on a small atlas.)
+MIN_ITEMS = 100
+
 _SHARED: dict[int, Any] = {}  # token -> inputs, set before a pool forks
 _NEXT = [0]
 

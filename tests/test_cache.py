@@ -127,6 +127,7 @@ def test_the_cache_is_not_written_when_switched_off(source, tmp_path):
 
 def test_output_is_identical_for_any_number_of_jobs(source, tmp_path, monkeypatch):
     monkeypatch.setattr("atlas.analysis.sampling.CHUNK", 1)  # so the 3 trees make 3 tasks
+    monkeypatch.setattr("atlas.parallel.MIN_ITEMS", 0)  # every forked path, even for 20 pages
     outputs = []
     for jobs in (1, 2, 3):
         build(source, tmp_path / f"jobs-{jobs}", jobs=jobs, use_cache=False)

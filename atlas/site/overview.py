@@ -4,7 +4,7 @@ free pages. Like :mod:`atlas.site.views`, plain functions returning plain data.
 
 from __future__ import annotations
 
-from collections import defaultdict
+from collections import defaultdict, deque
 from collections.abc import Callable
 
 import numpy as np
@@ -60,9 +60,34 @@ def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> Pa
     })
 
 
+OUTLINE_ENTRIES = 300  # at most this many entries in the tree as a list (about 30 KB)
+
+
+def _unfolded(tree, limit: int = OUTLINE_ENTRIES) -> set[int]:
+    """The clades whose members the outline lists: breadth first from the root, while the list
+    stays within ``limit`` entries (the root is always open). A clade left folded is one entry
+    linking to its own page, which lists its members and draws its part of the tree."""
+    unfolded = {tree.root}
+    count = 1 + len(tree.children(tree.root))
+    queue = deque(c for c in tree.children(tree.root).tolist() if tree.tip[c] < 0)
+    while queue:
+        v = queue.popleft()
+        kids = tree.children(v).tolist()
+        if count + len(kids) > limit:
+            continue
+        unfolded.add(v)
+        count += len(kids)
+        queue.extend(c for c in kids if tree.tip[c] < 0)
+    return unfolded
+
+
 def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> list[dict]:
-    """The tree as open/item/close events: a nested list the template writes without recursion."""
+    """The tree as open/item/close events: a nested list the template writes without recursion.
+
+    Large trees are shown down to the depth that :func:`_unfolded` allows; a folded clade is a
+    ``fold`` event (title, link, support, number of objects)."""
     tree = results.tree
+    unfolded = _unfolded(tree)
     events: list[dict] = []
     stack: list[tuple[int, bool]] = [(tree.root, False)]
     while stack:
@@ -75,6 +100,11 @@ def _outline(atlas: Atlas, results: Results, links: Links, notes_by_node) -> lis
             obj = atlas.objects[nid]
             events.append({"event": "tip", "title": obj.title if not obj.withheld else
                            atlas.i18n.gettext("Withheld object"), "href": links.objects[nid]})
+            continue
+        if v not in unfolded:
+            events.append({"event": "fold", "title": node_title(atlas, results, v, notes_by_node),
+                           "href": links.nodes[nid], "support": fmt(results.summary.support[v]),
+                           "count": len(results.members[v])})
             continue
         events.append({"event": "open", "title": node_title(atlas, results, v, notes_by_node),
                        "href": links.nodes[nid], "support": fmt(results.summary.support[v])})
@@ -97,6 +127,7 @@ def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
     internal = [v for v in range(results.tree.n_nodes) if results.tree.tip[v] < 0
                 and v != results.tree.root]
     supports = summary.support[internal] if internal else np.array([])
+    outline = _outline(atlas, results, links, notes_by_node)
     return PagePlan("tree.html", "tree.html", {
         "kind": "tree", "title": _("Lineage tree"),
         "method": method, "n_trees": summary.n_trees,
@@ -104,7 +135,7 @@ def tree_page(atlas: Atlas, results: Results, links: Links, notes_by_node,
         "outgroup": [atlas.objects[o].title for o in atlas.config.analysis["outgroup"]],
         "n_clades": len(internal),
         "well_supported": int(np.sum(supports >= 0.95)) if len(supports) else 0,
-        "outline": _outline(atlas, results, links, notes_by_node),
+        "outline": outline, "outline_folded": any(e["event"] == "fold" for e in outline),
     }, scripts=TREE_SCRIPTS)
 
 

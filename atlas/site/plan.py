@@ -11,11 +11,12 @@ from dataclasses import dataclass, field, replace
 from importlib import resources
 from pathlib import Path
 
+from .. import parallel
 from ..analysis.results import Results
 from ..cache import Cache, Hasher, analysis_key
 from ..i18n import catalogue_path
 from ..model import Atlas
-from ..parallel import Background
+from ..parallel import Background, map_forked
 from ..stats import study_stats
 from . import (
     downloads,
@@ -179,8 +180,29 @@ def note_free_key(atlas: Atlas) -> str:
     return h.hexdigest()
 
 
-def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node: dict
-                    ) -> NoteFree:
+def _plan_part(shared: tuple, task: tuple[str, list[int]]) -> list[list[PagePlan]]:
+    """The pages of some clades (node indices) or characters (indices in the atlas)."""
+    atlas, results, links, layout, notes_by_node, study_view, state_rows = shared
+    kind, indices = task
+    out = []
+    for i in indices:
+        if kind == "nodes":
+            node = views.node_page(atlas, results, links, layout, i, notes_by_node)
+            if node.context["place_ids"]:  # a map of the clade's places
+                node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
+                node = statemaps.node_page_map(node, atlas, results, i, study_view)
+            out.append(paging.paged(node, "node", atlas.i18n.gettext("Reconstructed traits"))
+                       + [views.brief_page(atlas, results, links, i, notes_by_node)])
+        else:
+            c = atlas.characters[i]
+            out.append([statemaps.character_page_map(treedata.character_page_plot(
+                views.character_page(atlas, results, links, c, notes_by_node), c),
+                atlas, links, c, study_view, state_rows.get(c.id))])
+    return out
+
+
+def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node: dict,
+                    jobs: int = 1) -> NoteFree:
     tree = results.tree
     labels, hrefs = [], []
     withheld = set()
@@ -205,19 +227,19 @@ def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node:
             overview.tree_page(atlas, results, links, notes_by_node, use_lengths), atlas)],
         "map": [overview.map_page(atlas, results, links, legend)],
         "nodes": [], "characters": [], "places": []}
-    for v, nid in enumerate(results.ids):
-        if tree.tip[v] < 0:
-            node = views.node_page(atlas, results, links, layout, v, notes_by_node)
-            if node.context["place_ids"]:  # a map of the clade's places
-                node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
-                node = statemaps.node_page_map(node, atlas, results, v, study_view)
-            pages["nodes"] += paging.paged(node, "node",
-                                           atlas.i18n.gettext("Reconstructed traits"))
-            pages["nodes"].append(views.brief_page(atlas, results, links, v, notes_by_node))
-    for c in atlas.characters:
-        pages["characters"].append(statemaps.character_page_map(treedata.character_page_plot(
-            views.character_page(atlas, results, links, c, notes_by_node), c),
-            atlas, links, c, study_view, state_rows.get(c.id)))
+    # clade and character pages, the bulk of the planning, in forked workers (atlas.parallel)
+    internal = [v for v in range(tree.n_nodes) if tree.tip[v] < 0]
+    n = jobs * 4 if jobs > 1 and len(internal) + len(atlas.characters) >= parallel.MIN_ITEMS \
+        else 1
+    tasks = [("nodes", internal[k::n]) for k in range(n)]
+    tasks += [("characters", list(range(k, len(atlas.characters), n))) for k in range(n)]
+    shared = (atlas, results, links, layout, notes_by_node, study_view, state_rows)
+    done = map_forked(_plan_part, shared, tasks, jobs)
+    for kind in ("nodes", "characters"):  # back in the order of nodes and of characters
+        by_index = {i: part for (k, idx), parts in zip(tasks, done) if k == kind
+                    for i, part in zip(idx, parts)}
+        for i in sorted(by_index):
+            pages[kind] += by_index[i]
     for pid in sorted(atlas.places):
         pages["places"].append(overview.place_page(atlas, results, links, pid))
 
@@ -270,7 +292,7 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
     notes_by_node = views.clade_notes_by_node(atlas, results)
     part = cache.get("plan", key) if cache.enabled else None
     if not isinstance(part, NoteFree):
-        part = _note_free_plan(atlas, results, links, notes_by_node)
+        part = _note_free_plan(atlas, results, links, notes_by_node, jobs)
         if cache.enabled:
             cache.put("plan", key, part, keep=2)
     layout = part.layout

@@ -18,6 +18,7 @@ import re
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING
 
+from .. import parallel
 from ..cache import Cache, Hasher
 from ..i18n import catalogue_path
 from ..parallel import map_forked
@@ -75,7 +76,7 @@ def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
     base = site_key(theme, site) if cache.enabled else ""
     keys: list[str] = []
     if cache.enabled:  # pickling every context to hash it is a third of a rebuild: share it
-        n = jobs * 4 if jobs > 1 and len(pages) >= 100 else 1
+        n = jobs * 4 if jobs > 1 and len(pages) >= parallel.MIN_ITEMS else 1
         spans = [range(c * len(pages) // n, (c + 1) * len(pages) // n) for c in range(n)]
         for part in map_forked(_keys, (base, pages), spans, jobs):
             keys += part

@@ -160,6 +160,13 @@ FIGURE_TIPS = 40  # larger neighbourhoods are not drawn inline (about 18 KB of S
 
 
 MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clades list all)
+# Lists that grow with the size of the study are cut, largest first, so that no page outgrows
+# the page-weight budget; the page says how many more there are, and the downloads (stats.json,
+# matrix.csv) hold every row. On the 400-object synthetic atlas these lists made 62 character
+# pages and 10 clade pages weigh 60-97 KB.
+STATE_CHIPS = 40  # objects named per state on a character page
+CHANGE_ROWS = 30  # branches (character page) or characters (clade page) with the most change
+BORROWED_CHARACTERS = 8  # characters named per row of a borrowing table
 
 
 def _drawable(local: list[LayoutNode]) -> bool:
@@ -309,7 +316,8 @@ def borrowing_rows(atlas: Atlas, results: Results, links: Links, root: str, note
         rows.append({"a": ends[0], "b": ends[1], "score": fmt(c.score),
                      "characters": [{"label": discrete[j].label,
                                      "href": root + links.characters[discrete[j].id]}
-                                    for j in c.characters],
+                                    for j in c.characters[:BORROWED_CHARACTERS]],
+                     "characters_more": max(0, len(c.characters) - BORROWED_CHARACTERS),
                      "distance": "–" if c.distance is None or not math.isfinite(c.distance)
                      else atlas.i18n.gettext("{distance} km").format(
                          distance=atlas.i18n.number(c.distance, 0))})
@@ -432,7 +440,9 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "children": children,
         "members": _member_chips(atlas, links, root, results.members[v][:MEMBER_CHIPS]),
         "members_more": max(0, len(results.members[v]) - MEMBER_CHIPS),
-        "groups": groups, "stem": stem, "notes": notes, "svg": svg, "defining": defining,
+        "groups": groups, "stem": stem[:CHANGE_ROWS],
+        "stem_more": max(0, len(stem) - CHANGE_ROWS),
+        "notes": notes, "svg": svg, "defining": defining,
         "brief": root + brief_path(nid),
         "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
                    for p in places],
@@ -596,7 +606,9 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
                        if s in key.split("/")]
             states.append({"symbol": s, "description": c.descriptions[k],
                            "lang": c.state_lang(k), "count": len(members),
-                           "objects": _member_chips(atlas, links, root, [o.id for o in members])})
+                           "objects": _member_chips(atlas, links, root,
+                                                    [o.id for o in members[:STATE_CHIPS]]),
+                           "more": max(0, len(members) - STATE_CHIPS)})
     unknown = by_state.get("?", []) + by_state.get("-", [])
     _ = atlas.i18n.gettext
     facts = [(_("Character id"), c.id), (_("Group"), c.group),
@@ -631,9 +643,11 @@ def character_page(atlas: Atlas, results: Results, links: Links, c: Character,
                  "credit": c.image.credit, "licence": c.image.licence}
     return PagePlan(path, "character.html", {
         "kind": "character", "title": c.label, "facts": facts, "states": states,
-        "unknown": _member_chips(atlas, links, root, [o.id for o in unknown]),
+        "unknown": _member_chips(atlas, links, root, [o.id for o in unknown[:STATE_CHIPS]]),
+        "unknown_count": len(unknown), "unknown_more": max(0, len(unknown) - STATE_CHIPS),
         "body": render_markdown(c.body, root, links.targets), "image": image,
-        "changes": changes, "binary": len(c.symbols) == 2,
+        "changes": changes[:CHANGE_ROWS], "changes_more": max(0, len(changes) - CHANGE_ROWS),
+        "binary": len(c.symbols) == 2,
         "ledger": ledger.character_ledger(atlas, links, c, root),
         "breadcrumbs": [(_("Glossary"), root + "glossary.html")],
         "lang": c.body_lang, "title_lang": c.fallback_lang,
