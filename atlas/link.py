@@ -279,14 +279,16 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
                     matrix.labels.get(cid, cid))
         group = str(meta.get("group") or (row.group if row else "") or "Characters")
         declared = _declared_states(note, row, problems)
-        observed = sorted({s for r in matrix.rows.values() for s in _symbols(r[j])})
+        distinct = {r[j] for r in matrix.rows.values()}  # few per column: read each once
+        observed = sorted({s for cell in distinct for s in _symbols(cell)})
         if kind == "continuous":
             symbols: tuple[str, ...] = ()
             descriptions: tuple[str, ...] = ()
         elif declared:
             symbols = tuple(declared)
             descriptions = tuple(declared.values())
-            for name, r in matrix.rows.items():
+            wrong = {cell for cell in distinct if any(s not in declared for s in _symbols(cell))}
+            for name, r in matrix.rows.items() if wrong else ():
                 bad = [s for s in _symbols(r[j]) if s not in declared]
                 if bad:
                     problems.error(matrix.file, matrix.row_lines[name],

@@ -8,6 +8,7 @@ stands on, so that the link stage can point at ``objects/lamp-03.md:4``. Transla
 
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -34,8 +35,11 @@ class Note:
         return self.key_lines.get(key, 1)
 
 
+@functools.cache
 def _safe_loader():
-    class Loader(yaml.SafeLoader):
+    # libyaml's parser when PyYAML has it (same documents, same marks); the constructor and
+    # resolver stay PyYAML's, so values are the same either way
+    class Loader(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):
         pass
 
     # Dates stay text: "period: 1840-1870" or "date: 2019-05-01" must not become objects.
@@ -57,9 +61,13 @@ def parse_note(text: str, shown: str, stem: str, problems: Problems) -> Note | N
         problems.error(shown, 1, "the front matter that starts with --- is never closed")
         return None
     front = "\n".join(lines[1:end])
-    try:
-        node = yaml.compose(front, Loader=_safe_loader())
-        meta = yaml.load(front, Loader=_safe_loader()) if node is not None else {}
+    try:  # composed once: the node gives the line of each key and the values
+        loader = _safe_loader()(front)
+        try:
+            node = loader.get_single_node()
+            meta = loader.construct_document(node) if node is not None else {}
+        finally:
+            loader.dispose()
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         line = mark.line + 2 if mark is not None else 1
