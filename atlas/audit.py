@@ -127,8 +127,7 @@ def _parse_all(files: dict[str, bytes], cache: Cache | None, jobs: int = 1
     cache = cache or Cache()
     digests = {p: hashlib.sha256(files[p]).hexdigest() for p in names} if cache.enabled else {}
     kind_key = hashlib.sha256(code_fingerprint().encode()).hexdigest()
-    stored = cache.get("audit", kind_key) if cache.enabled else None
-    stored = stored if isinstance(stored, dict) else {}
+    stored, added = cache.get_table("audit", kind_key) if cache.enabled else ({}, {})
     out, fresh = {}, {}
     todo = [p for p in names if not digests or digests[p] not in stored]
     jobs = jobs if len(todo) >= parallel.MIN_ITEMS else 1  # a few pages: not worth a fork
@@ -140,8 +139,10 @@ def _parse_all(files: dict[str, bytes], cache: Cache | None, jobs: int = 1
         out[p] = hit
         if digests:
             fresh[digests[p]] = hit
-    if cache.enabled and fresh.keys() != stored.keys():
-        cache.put("audit", kind_key, fresh, keep=1)
+    if cache.enabled and todo:
+        added.update({digests[p]: out[p] for p in todo})
+        cache.put_table("audit", kind_key, fresh, {k: v for k, v in added.items() if k in fresh},
+                        keep=1)
     return out
 
 

@@ -91,6 +91,36 @@ class Cache:
             return
 
 
+    # --- tables: big content-addressed dicts (page key -> HTML), updated a little per edit ---
+
+    def get_table(self, kind: str, key: str) -> tuple[dict, dict]:
+        """A table stored by :meth:`put_table`, and the part of it added since it was last
+        written whole. Its entries are content-addressed (a key names one value for ever), so
+        the base and the additions never disagree."""
+        base = self.get(kind, key)
+        added = self.get(kind + "-added", key)
+        base = base if isinstance(base, dict) else {}
+        added = added if isinstance(added, dict) and base else {}
+        return {**base, **added}, added
+
+    def put_table(self, kind: str, key: str, table: dict, added: dict, *, share: float = 0.1,
+                  keep: int = 2) -> None:
+        """Store ``table``. While ``added`` (its entries made since the table was last written
+        whole, earlier additions included) stays within ``share`` of it, only ``added`` is
+        written: an edit of one note rewrites one page's worth, not 90 MB of pages."""
+        if not self.enabled:
+            return
+        base_file = self._file(kind, key)
+        if added and base_file is not None and base_file.is_file() \
+                and len(added) <= share * len(table):
+            self.put(kind + "-added", key, added, keep=keep)
+            return
+        self.put(kind, key, table, keep=keep)
+        gone = self._file(kind + "-added", key)
+        if gone is not None:
+            gone.unlink(missing_ok=True)
+
+
 @functools.cache
 def code_fingerprint() -> str:
     """SHA-256 of the package's own Python files, so a changed builder never reads old entries

@@ -152,3 +152,23 @@ def test_an_edit_of_note_text_reuses_the_plan_of_tree_clade_and_character_pages(
           "title: Spoon with a hooked handle")
     build(source, tmp_path / "c", use_cache=True)
     assert len(calls) == 2  # a title shows on clade pages: planned again
+
+
+def test_a_table_grows_by_small_additions_and_is_rewritten_whole_past_its_share(tmp_path):
+    from atlas.cache import Cache
+
+    cache = Cache(tmp_path / "cache")
+    table = {f"k{i}": i for i in range(100)}
+    cache.put_table("t", "key", table, {})
+    assert cache.get_table("t", "key") == (table, {})
+    grown = {**table, "new": -1}
+    cache.put_table("t", "key", grown, {"new": -1})  # 1 of 101: only the addition is written
+    assert (tmp_path / "cache" / "t-added" / "key.pickle").is_file()
+    assert cache.get("t", "key") == table
+    assert cache.get_table("t", "key") == (grown, {"new": -1})
+    many = {**grown, **{f"m{i}": i for i in range(20)}}
+    added = {k: v for k, v in many.items() if k not in table}
+    cache.put_table("t", "key", many, added)  # 21 of 121, past 10%: written whole
+    assert cache.get("t", "key") == many
+    assert not (tmp_path / "cache" / "t-added" / "key.pickle").exists()
+    assert cache.get_table("t", "key") == (many, {})

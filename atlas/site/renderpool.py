@@ -80,8 +80,7 @@ def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
         spans = [range(c * len(pages) // n, (c + 1) * len(pages) // n) for c in range(n)]
         for part in map_forked(_keys, (base, pages), spans, jobs):
             keys += part
-    stored = cache.get(kind, base) if cache.enabled else None
-    stored = stored if isinstance(stored, dict) else {}
+    stored, added = cache.get_table(kind, base) if cache.enabled else ({}, {})
     html: list[str | None] = [stored.get(k) if k else None for k in keys] if keys \
         else [None] * len(pages)
     todo = [i for i, h in enumerate(html) if h is None]
@@ -97,6 +96,8 @@ def render_pages(pages: Sequence[PagePlan], theme: Theme, site: SiteInfo,
         else:
             for i, text in zip(todo, render_all(theme, site, [pages[i] for i in todo])):
                 html[i] = text
-    if cache.enabled and (todo or len(stored) != len(keys)):
-        cache.put(kind, base, {k: h for k, h in zip(keys, html) if k}, keep=2)
+    if cache.enabled and todo:
+        table = {k: h for k, h in zip(keys, html) if k}
+        added.update({keys[i]: html[i] for i in todo if keys[i]})
+        cache.put_table(kind, base, table, {k: h for k, h in added.items() if k in table})
     return [h for h in html if h is not None]
