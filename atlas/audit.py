@@ -193,12 +193,19 @@ def _word_char(ch: str) -> bool:
     return ch.isalnum() or ch in "_-"  # what ``[\w-]`` matches in a ``str`` regex
 
 
+def _letter(ch: str) -> bool:
+    return ch.isalnum() or ch == "_"  # what ``\w`` matches in a ``str`` regex
+
+
 def audit_leaks(files: dict[str, bytes], canaries: tuple[str, ...]) -> list[Problem]:
     """Every output file that contains text of a withheld item (ids as whole words).
 
     All canaries are looked for in one pass per file with an Aho-Corasick automaton
     (pyahocorasick); an id counts only where no letter, digit, ``_`` or ``-`` touches it, so
-    ``ob-1`` is not found in ``ob-12``. The line reported is that of the first occurrence.
+    ``ob-1`` is not found in ``ob-12``, and a title or passage that begins or ends with a
+    letter or digit counts only where it is not part of a longer word there, so the withheld
+    title "Vessel 50" is not found in the published "Vessel 500". The line reported is that of
+    the first occurrence.
     Measured on the 400-object synthetic atlas (4,793 files, 135 MB, 17 canaries), same
     machine: one regular expression of all canaries 56 s, the automaton 1.3 s.
     """
@@ -220,8 +227,9 @@ def audit_leaks(files: dict[str, bytes], canaries: tuple[str, ...]) -> list[Prob
             start = end - len(c) + 1
             if first is not None and start >= first[0]:
                 continue
-            if c in words and ((start > 0 and _word_char(text[start - 1]))
-                               or (end + 1 < len(text) and _word_char(text[end + 1]))):
+            touches = _word_char if c in words else _letter
+            if (start > 0 and touches(c[0]) and touches(text[start - 1])) \
+                    or (end + 1 < len(text) and touches(c[-1]) and touches(text[end + 1])):
                 continue
             first = (start, c)
         if first is not None:

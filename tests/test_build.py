@@ -150,6 +150,14 @@ def test_leak_audit_catches_planted_text():
     # "lamp-2" is found as a whole word, not inside "lamp-21" (invented case)
     assert [(p.file, p.line) for p in problems] == [("data/tree.js", 1), ("index.html", 1)]
     assert audit_leaks({"index.html": b"<p>lamp-21</p>"}, ("lamp-2",)) == []
+    # a withheld title is not found inside a longer published one, but is found beside
+    # punctuation or markup (invented titles)
+    title = ("Vessel 50",)
+    assert audit_leaks({"a.html": b"<li>Vessel 500</li> <li>Vessel 50a</li>"},
+                       title) == []
+    found = audit_leaks({"a.html": b"<li>Vessel 500</li>\n<li>Vessel 50</li>",
+                         "b.html": b"(Vessel 50, withheld)"}, title)
+    assert [(p.file, p.line) for p in found] == [("a.html", 2), ("b.html", 1)]
 
 
 def test_trait_sheet_defining_traits_and_brief(starter):
