@@ -99,3 +99,22 @@ def test_long_tables_are_split_into_linked_parts(starter, tmp_path, monkeypatch)
     glossary = (site / "glossary.html").read_text("utf-8")
     assert 'href="glossary.traits-2.html"' in glossary
     assert Path(site / "glossary.traits-2.html").is_file()
+
+
+def test_long_briefs_are_split_into_parts_of_whole_groups(starter, tmp_path, monkeypatch):
+    # The starter's 4 characters fall into groups (atlas/starter.py); with one character per
+    # part every group is a part of its own, and together the parts name each character once.
+    monkeypatch.setattr("atlas.site.paging.BRIEF_ROWS", 1)
+    build(starter, tmp_path / "site", use_cache=False)  # the link audit checks the part links
+    site = tmp_path / "site"
+    brief = sorted(p for p in (site / "briefs").glob("n-*.html") if ".part-" not in p.name)[0]
+    parts = [brief] + sorted(site.glob(f"briefs/{brief.stem}.part-*.html"))
+    assert len(parts) > 1
+    named = []
+    for part in parts:
+        html = part.read_text("utf-8")
+        assert 'class="toc parts"' in html  # every part lists every part
+        named += re.findall(r'<li><a href="../characters/([^"]+)\.html"', html)
+    assert sorted(named) == ["bowl", "handle", "hook", "notch"]
+
+

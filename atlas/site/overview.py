@@ -60,7 +60,7 @@ def home_page(atlas: Atlas, results: Results, links: Links, notes_by_node) -> Pa
     })
 
 
-OUTLINE_ENTRIES = 300  # at most this many entries in the tree as a list (about 30 KB)
+OUTLINE_ENTRIES = 250  # at most this many entries in the tree as a list (about 28 KB)
 
 
 def _unfolded(tree, limit: int = OUTLINE_ENTRIES) -> set[int]:

@@ -93,6 +93,46 @@ def paged(page: PagePlan, table: str, label: str, per_part: int | None = None
     return out
 
 
+BRIEF_ROWS = 250  # characters per part of a reconstruction brief: about 30 KB
+
+
+def paged_brief(page: PagePlan, per_part: int | None = None) -> list[PagePlan]:
+    """A reconstruction brief in parts of whole groups of at most about ``per_part``
+    characters (a group is never cut: the brief is read and printed group by group). The
+    first part stays at the brief's own path; the others are ``briefs/<id>.part-2.html``,
+    ... with the same template; every part gets ``parts`` as :func:`paged` gives them.
+
+    >>> plan = PagePlan("briefs/n.html", "brief.html", {"title": "B", "groups": [
+    ...     {"name": "a", "had": [1] * 2, "lacked": [], "unsure": []},
+    ...     {"name": "b", "had": [1], "lacked": [2], "unsure": []}]})
+    >>> [(p.path, [g["name"] for g in p.context["groups"]]) for p in paged_brief(plan, 2)]
+    [('briefs/n.html', ['a']), ('briefs/n.part-2.html', ['b'])]
+    """
+    def size(g: dict) -> int:
+        return len(g["had"]) + len(g["lacked"]) + len(g["unsure"])
+
+    per_part = per_part or BRIEF_ROWS
+    parts: list[list[dict]] = [[]]
+    for g in page.context["groups"]:
+        if parts[-1] and sum(map(size, parts[-1])) + size(g) > per_part:
+            parts.append([])
+        parts[-1].append(g)
+    if len(parts) == 1:
+        return [replace(page, context={**page.context, "parts": []})]
+    paths = [page.path if k == 1 else f"{page.path[:-5]}.part-{k}.html"
+             for k in range(1, len(parts) + 1)]
+    spans, first = [], 1
+    for part in parts:
+        n = sum(map(size, part))
+        spans.append(f"{first}–{first + n - 1}")
+        first += n
+    return [replace(page, path=paths[k], context={
+        **page.context, "groups": parts[k],
+        "parts": [{"label": spans[i], "href": posixpath.basename(paths[i]), "current": i == k}
+                  for i in range(len(parts))]})
+        for k in range(len(parts))]
+
+
 def paged_glossary(page: PagePlan, label: str) -> list[PagePlan]:
     """The glossary in parts; its list of groups (``toc``) names every group on every part."""
     toc = [{"name": g["name"], "slug": g["slug"]} for g in page.context["groups"]]

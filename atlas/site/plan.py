@@ -192,7 +192,8 @@ def _plan_part(shared: tuple, task: tuple[str, list[int]]) -> list[list[PagePlan
                 node = PagePlan(node.path, node.template, node.context, overview.MAP_SCRIPTS)
                 node = statemaps.node_page_map(node, atlas, results, i, study_view)
             out.append(paging.paged(node, "node", atlas.i18n.gettext("Reconstructed traits"))
-                       + [views.brief_page(atlas, results, links, i, notes_by_node)])
+                       + paging.paged_brief(views.brief_page(atlas, results, links, i,
+                                                             notes_by_node)))
         else:
             c = atlas.characters[i]
             out.append([statemaps.character_page_map(treedata.character_page_plot(

@@ -9,7 +9,7 @@ say without rendering anything.
 from __future__ import annotations
 
 import math
-from collections import defaultdict
+from collections import Counter, defaultdict
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -156,7 +156,7 @@ def clade_notes_by_node(atlas: Atlas, results: Results) -> dict[int, list]:
     return dict(out)
 
 
-FIGURE_TIPS = 40  # larger neighbourhoods are not drawn inline (about 18 KB of SVG at 40)
+FIGURE_TIPS = 30  # larger neighbourhoods are not drawn inline (about 13 KB of SVG at 30)
 
 
 MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clades list all)
@@ -167,6 +167,7 @@ MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clad
 STATE_CHIPS = 40  # objects named per state on a character page
 CHANGE_ROWS = 30  # branches (character page) or characters (clade page) with the most change
 BORROWED_CHARACTERS = 8  # characters named per row of a borrowing table
+PLACE_CHIPS = 60  # places named on a clade page (those with most of its objects); the map has all
 
 
 def _drawable(local: list[LayoutNode]) -> bool:
@@ -421,8 +422,9 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
     svg = tree_svg(local, root, highlight=_layout_highlight(local, focus), width=560,
                    title=_("The clade below {title}").format(title=title), tr=atlas.i18n) \
         if _drawable(local) else ""
-    places = sorted({atlas.objects[m].place for m in results.members[v]
-                     if atlas.objects[m].place and atlas.objects[m].place in atlas.places})
+    per_place = Counter(atlas.objects[m].place for m in results.members[v]
+                        if atlas.objects[m].place and atlas.objects[m].place in atlas.places)
+    places = sorted(per_place)
     rng = results.diagnostics.ranges.get(v)
     if rng is not None:
         facts.append((_("Range of its places"), _(
@@ -445,7 +447,8 @@ def node_page(atlas: Atlas, results: Results, links: Links, layout: list[LayoutN
         "notes": notes, "svg": svg, "defining": defining,
         "brief": root + brief_path(nid),
         "places": [{"name": atlas.places[p].name, "href": root + links.places[p]}
-                   for p in places],
+                   for p in sorted(sorted(places, key=lambda p: -per_place[p])[:PLACE_CHIPS])],
+        "places_more": max(0, len(places) - PLACE_CHIPS),
         "place_ids": " ".join(p for p in places if atlas.places[p].has_coordinates
                               and atlas.places[p].precision != "withheld"),
         "breadcrumbs": [(_("Lineage tree"), root + "tree.html")],
