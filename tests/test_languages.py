@@ -286,6 +286,17 @@ def test_untranslated_parts_of_a_character_are_marked_english(two_languages):
     assert re.search(r'<a href="characters/notch\.html" lang="en">Notched rim</a>', glossary)
     assert '<td lang="en">0 = absent; 1 = present</td>' in glossary  # every state English
     assert '0 = peu profond; 1 = <span lang="en">deep</span>' in glossary  # some of them
+    # the trait tables of objects and clades and the briefs mark them the same way
+    spoon = read(two_languages, "fr/objects/spoon-a.html")
+    assert re.search(r'<a href="../characters/notch\.html" lang="en">Notched rim</a>', spoon)
+    assert re.search(r'<a href="../characters/bowl\.html">Profondeur du cuilleron</a>', spoon)
+    nodes = [read(two_languages, f"fr/nodes/{p.name}") for p in
+             sorted((two_languages / "fr" / "nodes").glob("n-*.html"))]
+    assert any('<span lang="en">deep</span>' in n for n in nodes)
+    assert all('lang="en">Notched rim</a>' in n for n in nodes if "characters/notch.html" in n)
+    briefs = [read(two_languages, f"fr/briefs/{p.name}") for p in
+              sorted((two_languages / "fr" / "briefs").glob("n-*.html"))]
+    assert all('lang="en">Notched rim</a>' in b for b in briefs)
 
 
 def test_translated_characters_reach_the_tree_data_and_the_search(two_languages):

@@ -251,7 +251,10 @@ def object_page(atlas: Atlas, results: Results, links: Links, layout: list[Layou
                                 else _state_text(atlas, c, cell))
         evidence = ledger.cell_evidence(atlas, obj, c, root)
         groups[c.group].append({"label": c.label, "href": root + links.characters[c.id],
-                                "symbol": symbol, "description": description,
+                                "lang": c.fallback_lang, "symbol": symbol,
+                                "description": description, "description_lang":
+                                c.state_lang(c.symbols.index(cell)) if cell in c.symbols
+                                else "",
                                 "unknown": symbol in ("?", "-"), "evidence": evidence,
                                 "ledger": root + links.characters[c.id] + "#"
                                 + ledger.anchor(links, obj.id) if evidence else ""})
@@ -481,13 +484,14 @@ def _reconstruction(atlas: Atlas, results: Results, links: Links, v: int, root: 
             order = np.argsort(-probs, kind="stable")
             for k in order.tolist():
                 states.append({"symbol": c.symbols[k], "description": c.descriptions[k],
-                               "p": fmt(float(probs[k])), "width": f"{100 * float(probs[k]):.0f}"})
+                               "lang": c.state_lang(k), "p": fmt(float(probs[k])),
+                               "width": f"{100 * float(probs[k]):.0f}"})
             best = float(probs.max())
         else:
             best = 1.0
         groups[c.group].append({
-            "label": c.label, "href": root + links.characters[c.id], "states": states,
-            "parsimony": _symbols_of(c, int(pars[v, j])), "certainty": best,
+            "label": c.label, "lang": c.fallback_lang, "href": root + links.characters[c.id],
+            "states": states, "parsimony": _symbols_of(c, int(pars[v, j])), "certainty": best,
             "uncertain": best < UNCERTAIN,
         })
     for rows in groups.values():
@@ -551,7 +555,8 @@ def brief_page(atlas: Atlas, results: Results, links: Links, v: int, notes_by_no
         image = None
         if c.image is not None:
             image = {"src": root + "media/" + c.image.file, "alt": c.image.alt}
-        row = {"label": c.label, "state": c.describe(c.symbols[best]), "p": fmt(p),
+        row = {"label": c.label, "lang": c.fallback_lang, "state": c.describe(c.symbols[best]),
+               "state_lang": c.state_lang(best), "p": fmt(p),
                "href": root + links.characters[c.id], "image": image}
         if p < UNCERTAIN:
             groups[c.group]["unsure"].append(row)
