@@ -164,3 +164,21 @@ def test_french_character_page_shades_its_tree_in_french(tab, site, server):
     assert english.problems() == []
     legend = tab.page.evaluate(_TREE)["legend"]
     assert "Handle type: most probable state" in legend and "state 2 (strap)" in legend
+
+
+def _map_buttons(tab, url: str) -> list[str]:
+    visit = tab.open(url)
+    assert visit.problems() == []
+    tab.page.wait_for_function(
+        "() => document.querySelectorAll('#atlas-map .modebar-btn').length > 0", timeout=15000)
+    return tab.page.eval_on_selector_all(
+        "#atlas-map .modebar-btn", "bs => bs.map(b => b.getAttribute('data-title'))")
+
+
+def test_french_map_tool_bar_speaks_french(tab, site, server):
+    needs_french(site)
+    titles = _map_buttons(tab, server + "fr/map.html")
+    # the French catalogue's words (atlas/locale/fr), not plotly's English ones
+    assert "Zoom avant" in titles and "Réinitialiser" in titles, titles
+    assert "Zoom in" not in titles and "Reset" not in titles, titles
+    assert "Zoom in" in _map_buttons(tab, server + "map.html")  # English stays plotly's

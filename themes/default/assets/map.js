@@ -569,6 +569,23 @@
     toImageButtonOptions: { format: "svg", filename: "distribution-map" },
   };
 
+  // plotly's tool bar titles in the page's language, from data-text-plot-* on the map (plotly's
+  // own lookup: config.locale names an entry of config.locales mapping its English titles).
+  var PLOT_TITLES = {plotZoomIn: "Zoom in", plotZoomOut: "Zoom out", plotReset: "Reset",
+                     plotPan: "Pan", plotDownload: "Download plot"};
+  function plotConfig(div) {
+    var dictionary = {};
+    Object.keys(PLOT_TITLES).forEach(function (key) {
+      var text = div.dataset["text" + key.charAt(0).toUpperCase() + key.slice(1)];
+      if (text && text !== PLOT_TITLES[key]) dictionary[PLOT_TITLES[key]] = text;
+    });
+    if (!Object.keys(dictionary).length) return CONFIG;
+    var lang = document.documentElement.lang || "en";
+    var config = Object.assign({}, CONFIG, {locale: lang, locales: {}});
+    config.locales[lang] = {dictionary: dictionary};
+    return config;
+  }
+
   // The plot box is a labelled group (role="group": an image role may not hold plotly's tool
   // bar buttons) and the page carries a text equivalent, so the buttons are kept out of the tab
   // order: keyboard users go straight past the figure instead of through unlabelled controls.
@@ -642,7 +659,8 @@
         fig.layout.width = PAPER_WIDTH_PX;
         fig.layout.height = PAPER_HEIGHT_PX;
       }
-      return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout, CONFIG);
+      return (mode === "first" ? Plotly.newPlot : Plotly.react)(div, fig.data, fig.layout,
+                                                                 plotConfig(div));
     }
 
     var drawing;

@@ -22,9 +22,16 @@
                many: "{count} results for \u201c{query}\u201d.",
                more: "Showing the first {max}."};
 
+  // Counts in the page's language (<html lang>): 1 234 in French, 1,234 in English.
+  var NUMBERS = (function () {
+    try { return new Intl.NumberFormat(document.documentElement.lang || "en"); }
+    catch (e) { return null; }
+  })();
   function say(key, values) {
     return TEXTS[key].replace(/\{(\w+)\}/g, function (all, name) {
-      return name in values ? String(values[name]) : all;
+      if (!(name in values)) return all;
+      var v = values[name];
+      return typeof v === "number" && NUMBERS ? NUMBERS.format(v) : String(v);
     });
   }
 
