@@ -45,6 +45,19 @@ def split_groups(groups: list[dict], per_part: int = PER_PART) -> list[list[dict
     return parts
 
 
+def _spans(sizes: list[int]) -> list[str]:
+    """The rows each part holds, counted through the parts.
+
+    >>> _spans([100, 100, 7])
+    ['1–100', '101–200', '201–207']
+    """
+    out, first = [], 1
+    for n in sizes:
+        out.append(f"{first}–{first + n - 1}")
+        first += n
+    return out
+
+
 def part_path(path: str, k: int) -> str:
     """The page of part ``k`` (from 1) of the page at ``path``."""
     return path if k == 1 else f"{path[:-5]}.traits-{k}.html"
@@ -64,11 +77,7 @@ def paged(page: PagePlan, table: str, label: str, per_part: int | None = None
         return [replace(page, context={**page.context, "groups": parts[0], "parts": [],
                                        "anchors": {}})]
     names = [posixpath.basename(part_path(page.path, k)) for k in range(1, len(parts) + 1)]
-    spans, first = [], 1
-    for part in parts:
-        n = sum(len(g["rows"]) for g in part)
-        spans.append(f"{first}–{first + n - 1}")
-        first += n
+    spans = _spans([sum(len(g["rows"]) for g in part) for part in parts])
     anchors = {}  # a group's anchor lives on the part where the group starts
     for name, part in zip(names, parts):
         for g in part:
@@ -121,11 +130,7 @@ def paged_brief(page: PagePlan, per_part: int | None = None) -> list[PagePlan]:
         return [replace(page, context={**page.context, "parts": []})]
     paths = [page.path if k == 1 else f"{page.path[:-5]}.part-{k}.html"
              for k in range(1, len(parts) + 1)]
-    spans, first = [], 1
-    for part in parts:
-        n = sum(map(size, part))
-        spans.append(f"{first}–{first + n - 1}")
-        first += n
+    spans = _spans([sum(map(size, part)) for part in parts])
     return [replace(page, path=paths[k], context={
         **page.context, "groups": parts[k],
         "parts": [{"label": spans[i], "href": posixpath.basename(paths[i]), "current": i == k}
