@@ -585,6 +585,27 @@ def test_reconstruct_over_sample_averages_trees_that_contain_the_clade():
     assert np.all(np.isnan(probs[4]))
 
 
+def test_sample_passes_survive_a_wide_polytomy():
+    """The compiled down pass multiplies the messages of a node's other children; at a star of
+    1,200 long branches (each message about 1/2) their product underflows unless it is
+    rescaled on the way. Checked against the NumPy down pass of ``ancestral_states``, which
+    rescales every partial product (invented case: random states)."""
+    rng = np.random.default_rng(12)
+    n_star = 1200
+    parts = ",".join(f"s{i:04d}:3" for i in range(n_star))
+    tree = from_newick(f"((a:0.5,b:0.5):1,{parts});")
+    masks = (1 << rng.integers(0, 2, size=(len(tree.taxa), 6))).astype(np.uint32)
+    ns = np.full(6, 2)
+    fit = lk.MkFit("mk", {"rate": 0.5}, None, np.nan, 1)
+    clades = [m for v, m in enumerate(clade_masks(tree)) if tree.tip[v] < 0]
+    probs, counts = lk.reconstruct_over_sample([tree], clades, masks, ns, fit)
+    states = lk.ancestral_states(tree, masks, ns, fit)
+    internal = [v for v in range(tree.n_nodes) if tree.tip[v] < 0]
+    np.testing.assert_array_equal(counts, 1)
+    np.testing.assert_allclose(probs, states[internal], atol=1e-12)
+    assert np.allclose(probs.sum(axis=2), 1.0)
+
+
 # ---------------------------------------------------------------------------------------------
 # Bad input
 

@@ -372,6 +372,48 @@ def test_two_distant_lineages_with_three_shared_gains_rank_first():
     assert ties == sorted(ties)  # ties broken by node ids
 
 
+def test_borrowing_candidates_equal_a_pair_by_pair_enumeration():
+    """Against a direct reading of the definition: every pair of branches, checked by walking
+    up the parent pointers (invented case: a random 30-tip tree, random gains, multistate
+    changes ``into`` for half the characters)."""
+    rng = np.random.default_rng(8)
+    n_tips, n_chars = 30, 12
+    labels = [f"t{i}" for i in range(n_tips)]
+    parts = list(labels)
+    while len(parts) > 1:
+        i, j = sorted(rng.choice(len(parts), 2, replace=False).tolist())
+        parts = [p for k, p in enumerate(parts) if k not in (i, j)] + [f"({parts[i]},{parts[j]})"]
+    tree = from_newick(parts[0] + ";")
+    gains = rng.random((tree.n_nodes, n_chars)) * 1.2
+    gains[:, n_chars // 2:] = np.nan  # multistate characters: no gains, changes into states
+    changes = Changes(gains, np.zeros_like(gains), gains.copy())
+    into = rng.random((tree.n_nodes, n_chars, 3)) * 1.1
+    dist = rng.random((tree.n_nodes, tree.n_nodes))
+    for threshold, min_shared in ((0.5, 1), (0.7, 2), (0.95, 1)):
+        found = borrowing_candidates(tree, changes, gain_threshold=threshold,
+                                     min_shared=min_shared, into=into,
+                                     pair_distance=lambda x, y: dist[x, y])
+        expected = []
+        for a, b in itertools.combinations(range(tree.n_nodes - 1), 2):
+            if _below(tree, a, b) or _below(tree, b, a) or tree.parent[a] == tree.parent[b]:
+                continue
+            shared = []
+            for c in range(n_chars):
+                table = ([(1, gains[:, c])] if c < n_chars // 2
+                         else [(s, into[:, c, s]) for s in range(3)])
+                shared += [(c, s, min(col[a], col[b])) for s, col in table
+                           if col[a] >= threshold and col[b] >= threshold]
+            if len(shared) >= min_shared:
+                expected.append((a, b, tuple(x[0] for x in shared), tuple(x[1] for x in shared),
+                                 sum(x[2] for x in shared)))
+        expected.sort(key=lambda e: (-e[4], e[0], e[1]))
+        assert len(found) == len(expected) > 0
+        for cand, (a, b, chars, states, score) in zip(found, expected):
+            assert (cand.a, cand.b, cand.characters, cand.states) == (a, b, chars, states)
+            assert cand.score == pytest.approx(score, rel=1e-12)
+            assert cand.distance == dist[a, b]
+
+
 def test_borrowing_options_threshold_min_shared_and_distances():
     tree = from_newick(BORROW_TREE)
     a, g, c, e = (_node(tree, x) for x in "AGCE")

@@ -144,18 +144,17 @@ def diagnose_tree(atlas: Atlas, tree: Tree, changes: Changes | None,
         if idx:
             ranges[v] = clade_range(lats[idx], lons[idx])
 
-    def centre(v: int) -> tuple[float, float] | None:
-        if tree.tip[v] >= 0:
-            i = int(tree.tip[v])
-            return (lats[i], lons[i]) if np.isfinite(lats[i]) else None
-        r = ranges.get(v)
-        return (r.centroid_lat, r.centroid_lon) if r is not None else None
+    # the centre of each lineage: its object's place, or the centroid of its clade's range
+    centre_lat = np.full(tree.n_nodes, np.nan)
+    centre_lon = np.full(tree.n_nodes, np.nan)
+    tips = tree.tip >= 0
+    centre_lat[tips] = lats[tree.tip[tips]]
+    centre_lon[tips] = lons[tree.tip[tips]]
+    for v, r in ranges.items():
+        centre_lat[v], centre_lon[v] = r.centroid_lat, r.centroid_lon
 
-    def pair_distance(a: int, b: int) -> float:
-        ca, cb = centre(a), centre(b)
-        if ca is None or cb is None:
-            return float("nan")
-        return float(great_circle_km(ca[0], ca[1], cb[0], cb[1]))
+    def pair_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        return great_circle_km(centre_lat[a], centre_lon[a], centre_lat[b], centre_lon[b])
 
     borrowing: tuple[Candidate, ...] = ()
     from_root = None

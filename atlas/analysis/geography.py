@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from atlas.analysis.kernels import mantel_hits
 from atlas.analysis.tree import Tree
 from atlas.errors import AtlasError, Problem
 
@@ -227,13 +228,12 @@ def mantel(a, b, *, permutations: int | str = 999, seed: int = 1) -> MantelResul
 
 def _count_at_least(perms: np.ndarray, xa: np.ndarray, zb: np.ndarray, iu: np.ndarray,
                     ju: np.ndarray, r: float) -> int:
-    # b relabelled by each permutation, as a (k, m) gather from the flat matrix: three times
-    # faster than indexing zb[perms[:, iu], perms[:, ju]] (n = 200, 999 permutations: 1.25 s
-    # against 3.8 s, measured on the development machine).
-    p = perms.astype(np.int32)
-    flat = p[:, iu] * np.int32(zb.shape[0]) + p[:, ju]
-    values = zb.ravel().take(flat)
-    return int(np.count_nonzero(values @ xa >= r - 1e-12))
+    """Relabellings in ``perms`` whose statistic reaches ``r`` (compiled:
+    :func:`atlas.analysis.kernels.mantel_hits`)."""
+    x = np.zeros(zb.shape)
+    x[iu, ju] = xa
+    return int(mantel_hits(np.ascontiguousarray(perms, dtype=np.int64), x,
+                           np.ascontiguousarray(zb), float(r)))
 
 
 def _square(m, which: str) -> np.ndarray:

@@ -47,6 +47,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special, stats
 
+from atlas.analysis.kernels import BLOCK, padded, root_logliks, up_pass
 from atlas.analysis.tree import Tree
 from atlas.errors import AtlasError, Problem, Problems, did_you_mean
 
@@ -104,6 +105,9 @@ class _Schedule:
     tips: np.ndarray  # node ids of tips
     tip_taxon: np.ndarray  # taxon index of each tip in ``tips``
     levels: tuple[_Level, ...]  # increasing height
+    child_ptr: np.ndarray  # children of node v: child_idx[child_ptr[v]:child_ptr[v + 1]]
+    child_idx: np.ndarray
+    internal: np.ndarray  # internal nodes by increasing height (children before parents)
 
 
 def _node_name(tree: Tree, v: int) -> str:
@@ -120,17 +124,21 @@ def _schedule(tree: Tree, problems: Problems) -> _Schedule | None:
         return None
     length = tree.length.astype(np.float64).copy()
     length[tree.root] = 0.0
-    for v in range(n - 1):
-        if not np.isfinite(length[v]) or length[v] < 0:
+    body = np.arange(n) != tree.root
+    bad_length = body & ~(np.isfinite(length) & (length >= 0))
+    tip_with_children = body & (tree.tip >= 0) & (n_children > 0)
+    empty = body & (tree.tip < 0) & (n_children == 0)
+    for v in np.flatnonzero(bad_length | tip_with_children | empty).tolist():
+        if bad_length[v]:
             problems.error(
                 "trees",
                 None,
                 f"branch above {_node_name(tree, v)} has length {tree.length[v]}",
                 "likelihood models need non-negative branch lengths on every branch",
             )
-        if tree.tip[v] >= 0 and n_children[v] > 0:
+        if tip_with_children[v]:
             problems.error("trees", None, f"{_node_name(tree, v)} has children", "not supported")
-        if tree.tip[v] < 0 and n_children[v] == 0:
+        if empty[v]:
             problems.error("trees", None, f"node {v} has neither children nor a taxon")
     if problems.errors:
         return None
@@ -171,7 +179,9 @@ def _schedule(tree: Tree, problems: Problems) -> _Schedule | None:
             )
         )
     tips = tree.tip_ids()
-    return _Schedule(n, tree.root, tree.parent, length, tips, tree.tip[tips], tuple(levels))
+    internal = np.concatenate([lev.parents for lev in levels]).astype(np.int64)
+    return _Schedule(n, tree.root, tree.parent, length, tips, tree.tip[tips], tuple(levels),
+                     tree.child_ptr.astype(np.int64), tree.child_idx.astype(np.int64), internal)
 
 
 def _check_data(tree: Tree, masks: np.ndarray, n_states: np.ndarray, problems: Problems) -> None:
@@ -272,12 +282,17 @@ def _prepare(
     _check_data(tree, masks, n_states, problems)
     problems.raise_if_any()
     assert sched is not None
+    return sched, _groups(masks, n_states)
+
+
+def _groups(masks: np.ndarray, n_states: np.ndarray) -> tuple[_Group, ...]:
+    """The characters by state count, with their tip conditional likelihoods (checked data)."""
     groups = []
     for k in np.unique(n_states).tolist():
         cols = np.flatnonzero(n_states == k)
         bits = (masks[:, None, cols].astype(np.int64) >> np.arange(k)[:, None]) & 1
         groups.append(_Group(int(k), cols, bits.astype(np.float64)))
-    return sched, tuple(groups)
+    return tuple(groups)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -411,32 +426,22 @@ def _up(
 ) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
     """Pruning: rescaled conditional likelihoods, branch messages, and root log-likelihoods.
 
-    Layout ``[node, category, state, char]``: the state sums are small matrix products
-    ``P @ D`` over long rows of characters, and the product over children is taken rank by rank
-    instead of with ``reduceat``: one evaluation went from 392 to 186 us per character on
-    benchmarks/bench_likelihood.py (500 tips, four categories).
+    Layout ``[node, category, state, char]``; the loops are compiled
+    (:func:`atlas.analysis.kernels.up_pass`, whose docstring has the recursion and the measured
+    gain over the vectorised NumPy pass it replaced).
     """
     n_cat = p.shape[1]
     k, n_chars = tip_part.shape[1:]
+    p = np.ascontiguousarray(p)
+    if not keep:  # only the root's likelihoods: character blocks that stay in the caches
+        loglik = root_logliks(sched.internal, sched.child_ptr, sched.child_idx, p, sched.tips,
+                              sched.tip_taxon, padded(tip_part), sched.root, pi, BLOCK)
+        return np.empty((0,)), None, loglik[:, :n_chars]
     down = np.empty((sched.n_nodes, n_cat, k, n_chars))
-    message = np.empty_like(down) if keep else None
+    message = np.empty_like(down)
     log_scale = np.zeros((sched.n_nodes, n_cat, n_chars))
     down[sched.tips] = tip_part[sched.tip_taxon][:, None]
-    for lev in sched.levels:
-        e = lev.edges
-        m = p[e] @ down[e]  # message[e][a] = sum_b P_e[a, b] down[e][b]
-        if message is not None:
-            message[e] = m
-        prod = m[lev.starts]
-        logs = log_scale[e]
-        acc = logs[lev.starts]
-        for idx in lev.prefix_steps:
-            prod[lev.parent_pos[idx]] *= m[idx]
-            acc[lev.parent_pos[idx]] += logs[idx]
-        scale = prod.max(axis=2)
-        scale[scale <= 0] = 1.0  # impossible data: keep the zeros, the root shows log 0
-        down[lev.parents] = prod / scale[:, :, None]
-        log_scale[lev.parents] = acc + np.log(scale)
+    up_pass(sched.internal, sched.child_ptr, sched.child_idx, p, down, log_scale, message, True)
     with np.errstate(divide="ignore"):
         loglik = np.log(np.einsum("a,gac->gc", pi, down[sched.root])) + log_scale[sched.root]
     return down, message, loglik

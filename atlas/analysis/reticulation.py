@@ -390,14 +390,6 @@ def _gain_table(changes: Changes, into: np.ndarray | None, n_nodes: int) -> np.n
     return table
 
 
-def _distance_of(pair_distance, a: int, b: int) -> float | None:
-    if pair_distance is None:
-        return None
-    if callable(pair_distance):
-        return float(pair_distance(a, b))
-    return float(pair_distance[a, b])
-
-
 def borrowing_candidates(
     tree: Tree,
     changes: Changes,
@@ -423,8 +415,9 @@ def borrowing_candidates(
     Binary characters gain state 1 (``changes.gains``). Characters of more than two states are
     used only when ``into`` is given: the expected changes into each state from
     :func:`expected_changes_into`; every state counts as a gain then. ``pair_distance``, an
-    ``(n_nodes, n_nodes)`` array or a function of two node ids, is attached to each candidate
-    as ``distance`` (e.g. between the places of the two lineages; the caller computes it).
+    ``(n_nodes, n_nodes)`` array or a function of two arrays of node ids returning an array,
+    is attached to each candidate as ``distance`` (e.g. between the places of the two
+    lineages; the caller computes it).
 
     Hand example: branches 0 and 5 both gain state 1 of characters 2 and 7 with expected
     gains ``0.9, 0.8`` and ``0.6, 1.0``: score ``min(0.9, 0.6) + min(0.8, 1.0) = 1.4``.
@@ -442,37 +435,45 @@ def borrowing_candidates(
         pair_distance = np.asarray(pair_distance, dtype=np.float64)
     start = subtree_starts(tree)
     parent = tree.parent
-    shared: dict[tuple[int, int], list[tuple[int, int, float]]] = {}
     with np.errstate(invalid="ignore"):
         flagged = np.nan_to_num(table, nan=-1.0) >= gain_threshold
     flagged[tree.root] = False
+    # Every pair of flagged branches per (character, state), as arrays: one pass over the
+    # pairs in Python took 39 s of the 1,000 x 500 x 2,000 synthetic atlas's analysis.
+    found = []
     for c, s in zip(*np.nonzero(flagged.any(axis=0))):
         nodes = np.flatnonzero(flagged[:, c, s])
-        gain = table[nodes, c, s]
-        for x in range(nodes.size):
-            a = int(nodes[x])
-            for y in range(x + 1, nodes.size):
-                b = int(nodes[y])  # a < b: b is never below a in postorder
-                if start[b] <= a or parent[a] == parent[b]:
-                    continue  # a lies below b, or they are sisters
-                shared.setdefault((a, b), []).append((int(c), int(s), min(gain[x], gain[y])))
-    out = []
-    for (a, b), items in shared.items():
-        if len(items) < min_shared:
+        if nodes.size < 2:
             continue
-        items.sort()
-        out.append(
-            Candidate(
-                a,
-                b,
-                tuple(c for c, _, _ in items),
-                tuple(s for _, s, _ in items),
-                float(sum(g for _, _, g in items)),
-                _distance_of(pair_distance, a, b),
-            )
-        )
-    out.sort(key=lambda cand: (-cand.score, cand.a, cand.b))
-    return out
+        gain = table[nodes, c, s]
+        x, y = np.triu_indices(nodes.size, 1)
+        a, b = nodes[x], nodes[y]  # a < b: b is never below a in postorder
+        keep = (start[b] > a) & (parent[a] != parent[b])  # a below b, or sisters
+        found.append((a[keep], b[keep], np.full(int(keep.sum()), c), np.full(int(keep.sum()), s),
+                      np.minimum(gain[x], gain[y])[keep]))
+    a, b, c, s, g = (np.concatenate(col) for col in zip(*found)) if found else ([],) * 5
+    if not len(a):
+        return []
+    order = np.lexsort((s, c, b, a))
+    a, b, c, s, g = a[order], b[order], c[order], s[order], g[order]
+    first = np.flatnonzero(np.r_[True, (a[1:] != a[:-1]) | (b[1:] != b[:-1])])
+    size = np.diff(np.r_[first, a.size])
+    score = np.add.reduceat(g, first)
+    kept = np.flatnonzero(size >= min_shared)
+    kept = kept[np.lexsort((b[first[kept]], a[first[kept]], -score[kept]))]
+    pa, pb = a[first[kept]], b[first[kept]]
+    if pair_distance is None:
+        distance = [None] * kept.size
+    elif callable(pair_distance):
+        distance = np.asarray(pair_distance(pa, pb), dtype=np.float64).tolist()
+    else:
+        distance = pair_distance[pa, pb].tolist()
+    c_list, s_list = c.tolist(), s.tolist()
+    return [
+        Candidate(int(x), int(y), tuple(c_list[f:f + n]), tuple(s_list[f:f + n]), float(sc), d)
+        for x, y, f, n, sc, d in zip(pa.tolist(), pb.tolist(), first[kept].tolist(),
+                                     size[kept].tolist(), score[kept].tolist(), distance)
+    ]
 
 
 # ---------------------------------------------------------------------------------------------

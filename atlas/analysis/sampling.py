@@ -28,15 +28,15 @@ from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 
+from ..errors import Problems
+from .kernels import BLOCK, padded, sample_tree
 from .likelihood import (
     MkFit,
     _categories,
-    _category_posterior,
     _check_params,
-    _posterior,
     _prepare,
+    _schedule,
     _transitions,
-    _up,
     chain_for,
 )
 from .tree import Tree, clade_masks
@@ -44,68 +44,43 @@ from .tree import Tree, clade_masks
 CHUNK = 8  # trees per task; fixed, so the order of additions never depends on ``jobs``
 
 
-def _down_internal(sched, p: np.ndarray, message: np.ndarray, pi: np.ndarray,
-                   need: np.ndarray) -> np.ndarray:
-    """``above`` (rescaled to a maximum of 1 over states) at the nodes marked in ``need``,
-    which must hold every ancestor of a marked node."""
-    above = np.empty_like(message)
-    above[sched.root] = pi[None, :, None]
-    for lev in reversed(sched.levels):
-        keep = need[lev.edges]
-        if not keep.any():
-            continue
-        m = message[lev.edges]
-        before = np.ones_like(m)
-        for idx in lev.prefix_steps:
-            before[idx] = before[idx - 1] * m[idx - 1]
-        after = np.ones_like(m)
-        for idx in lev.suffix_steps:
-            after[idx] = after[idx + 1] * m[idx + 1]
-        b = above[lev.edge_parent[keep]] * before[keep] * after[keep]
-        top = b.max(axis=-2, keepdims=True)
-        b /= np.where(top > 0, top, 1.0)
-        a = np.swapaxes(p[lev.edges[keep]], -1, -2) @ b
-        top = a.max(axis=-2, keepdims=True)
-        above[lev.edges[keep]] = a / np.where(top > 0, top, 1.0)
-    return above
-
-
-def _tree_posteriors(tree: Tree, masks: np.ndarray, n_states: np.ndarray, fit: MkFit,
-                     nodes: np.ndarray) -> list[np.ndarray]:
-    """Per state-count group, the marginal posteriors ``(len(nodes), n_cols, k)``."""
-    sched, groups = _prepare(tree, masks, n_states)
+def _add_tree(tree: Tree, groups, chains, cat: np.ndarray, nodes: np.ndarray, rows: np.ndarray,
+              sums: list[np.ndarray]) -> None:
+    """Add each group's marginal posteriors at ``nodes`` of ``tree`` to ``sums[group][rows]``
+    (compiled: :func:`atlas.analysis.kernels.sample_tree`)."""
+    problems = Problems()
+    sched = _schedule(tree, problems)
+    problems.raise_if_any()
     need = tree.tip < 0  # every ancestor of a clade's node is internal
     need[nodes] = True  # a clade of one tip sits on a tip
-    out = []
-    cat = _categories(fit.alpha)
-    for group in groups:
-        chain = chain_for(fit.model, fit.rates, group.k)
+    for (tip_part, chain), total in zip(zip(groups, chains), sums):
         _, p = _transitions(sched, chain, cat)
-        down, message, loglik = _up(sched, p, group.tip_part, chain.pi)
-        above = _down_internal(sched, p, message, chain.pi, need)
-        out.append(_posterior(above[nodes], down[nodes], _category_posterior(loglik)))
-    return out
+        sample_tree(sched.internal, sched.child_ptr, sched.child_idx, np.ascontiguousarray(p),
+                    sched.tips, sched.tip_taxon, tip_part, sched.root, chain.pi, need, nodes,
+                    rows, total, BLOCK)
 
 
 def _chunk_sums(trees: Sequence[Tree], index: dict[int, int], masks: np.ndarray,
                 n_states: np.ndarray, fit: MkFit) -> tuple[list[np.ndarray], np.ndarray]:
     """Sums of the posteriors per group over ``trees``, and the count per clade."""
     n_clades = len(index)
-    sums: list[np.ndarray] | None = None
     counts = np.zeros(n_clades, dtype=np.int64)
+    if not trees:
+        return [], counts
+    _, groups = _prepare(trees[0], masks, n_states)  # checks the data once
+    chains = [chain_for(fit.model, fit.rates, group.k) for group in groups]
+    cat = _categories(fit.alpha)
+    parts = [padded(group.tip_part, BLOCK) for group in groups]
+    sums = [np.zeros((n_clades, part.shape[2], group.k)) for part, group in zip(parts, groups)]
     for tree in trees:
         hits = [(index[c], v) for v, c in enumerate(clade_masks(tree)) if c in index]
         if not hits:
             continue
-        rows = np.array([h[0] for h in hits])
-        nodes = np.array([h[1] for h in hits])
-        posts = _tree_posteriors(tree, masks, n_states, fit, nodes)
-        if sums is None:
-            sums = [np.zeros((n_clades,) + post.shape[1:]) for post in posts]
-        for total, post in zip(sums, posts):
-            total[rows] += post  # a clade occurs at most once per tree
+        rows = np.array([h[0] for h in hits], dtype=np.int64)
+        nodes = np.array([h[1] for h in hits], dtype=np.int64)
+        _add_tree(tree, parts, chains, cat, nodes, rows, sums)  # a clade is once in a tree
         counts[rows] += 1
-    return sums or [], counts
+    return [total[:, : group.cols.size] for total, group in zip(sums, groups)], counts
 
 
 def sample_states(trees: Sequence[Tree], summary_clades: Sequence[int], masks: np.ndarray,
