@@ -118,3 +118,30 @@ def test_long_briefs_are_split_into_parts_of_whole_groups(starter, tmp_path, mon
     assert sorted(named) == ["bowl", "handle", "hook", "notch"]
 
 
+
+
+def test_defining_traits_keep_the_strongest_and_count_the_rest(demo_copy, monkeypatch):
+    """With room for fewer defining traits than a clade has, the page keeps those unambiguous
+    under parsimony first, then the largest expected gains, in label order, and counts the
+    rest (the demo atlas, invented)."""
+    from atlas.analysis.results import analyse
+    from atlas.build import load
+    from atlas.site import views
+
+    atlas = load(demo_copy)
+    results = analyse(atlas)
+    links = views.make_links(atlas, results)
+    full = {}
+    for v in range(results.tree.n_nodes):
+        if results.tree.tip[v] < 0:
+            rows, more = views.defining_traits(atlas, results, links, v, "../")
+            assert more == 0  # the demo's clades have fewer than CHANGE_ROWS
+            full[v] = rows
+    v, rows = max(full.items(), key=lambda kv: len(kv[1]))
+    assert len(rows) >= 3
+    monkeypatch.setattr(views, "CHANGE_ROWS", 2)
+    kept, more = views.defining_traits(atlas, results, links, v, "../")
+    assert len(kept) == 2 and more == len(rows) - 2
+    assert [r["label"] for r in kept] == sorted(r["label"] for r in kept)
+    strongest = sorted(rows, key=lambda r: r["rank"])[:2]
+    assert {r["label"] for r in kept} == {r["label"] for r in strongest}

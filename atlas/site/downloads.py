@@ -69,6 +69,10 @@ def public_labels(atlas: Atlas) -> dict[str, str]:
     return out
 
 
+_NUMBERS = {int, float}
+_INFINITE = (math.inf, -math.inf)
+
+
 def relabel(value, labels: Mapping[str, str]):
     """``value`` (JSON-like data) with every string equal to a relabelled id replaced.
 
@@ -80,8 +84,13 @@ def relabel(value, labels: Mapping[str, str]):
     if isinstance(value, str):
         return labels.get(value, value)
     if isinstance(value, dict):
-        return {relabel(k, labels): relabel(v, labels) for k, v in value.items()}
+        return {labels.get(k, k) if type(k) is str else relabel(k, labels):
+                labels.get(v, v) if type(v) is str else
+                (v if v == v and v not in _INFINITE else None) if type(v) in _NUMBERS else
+                relabel(v, labels) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
+        if set(map(type, value)) <= _NUMBERS:  # rows of numbers, most of the stats
+            return [None if x != x or x in _INFINITE else x for x in value]
         out = [relabel(v, labels) for v in value]
         if out != list(value) and all(isinstance(v, str) for v in value) \
                 and list(value) == sorted(value):
