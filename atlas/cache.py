@@ -23,6 +23,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from . import __version__
 
 FOLDER = ".atlas-cache"
@@ -132,6 +134,9 @@ def code_fingerprint() -> str:
     return h.hexdigest()
 
 
+_SCALARS = {str, type(None), int, float, bool}
+
+
 class Hasher:
     """SHA-256 over a sequence of typed parts (bytes, text, numbers, arrays, nested tuples),
     starting from :func:`code_fingerprint`."""
@@ -158,6 +163,11 @@ class Hasher:
             for k in sorted(part, key=repr):
                 self.add(repr(k)).add(part[k])
         elif isinstance(part, list | tuple):
+            if set(map(type, part)) <= _SCALARS:  # e.g. node labels: one repr, not one each
+                data = repr(tuple(part)).encode("utf-8")
+                h.update(b"t%d:" % len(data))
+                h.update(data)
+                return self
             h.update(b"l%d:" % len(part))
             for item in part:
                 self.add(item)
@@ -190,8 +200,12 @@ def analysis_key(atlas) -> str:
             h.add("no sample")
             continue
         h.add((sample.taxa, sample.read, sample.burnin, sample.thin, len(sample.trees)))
-        for tree in sample.trees:
-            h.add((tree.parent, tree.length, tree.tip, tree.label))
+        trees = sample.trees
+        if trees:  # every tree's arrays end to end, with the sizes: a few parts, not 2,000
+            h.add(np.array([t.n_nodes for t in trees], dtype=np.int64))
+            for name in ("parent", "length", "tip"):
+                h.add(np.concatenate([np.asarray(getattr(t, name)) for t in trees]))
+            h.add([label for t in trees for label in t.label])
     h.add((atlas.masks, atlas.n_states, atlas.ordered, atlas.continuous))
     h.add([(c.id, c.symbols, c.column, c.kind, c.ordered) for c in atlas.characters])
     h.add(coordinates(atlas))

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import os
 import re
 from pathlib import Path
 
@@ -88,6 +89,34 @@ def test_a_failed_build_leaves_the_earlier_build_untouched(starter, tmp_path):
         build(starter, out)
     assert tree_digest(out) == before
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".site.atlas")]
+
+
+def test_a_rebuild_links_unchanged_files_and_never_writes_into_old_ones(starter, tmp_path):
+    """Files the earlier build holds byte for byte are hard-linked into the new one; a file
+    edited by hand in the output is written afresh; and a copy of the earlier build made with
+    hard links (as backup tools do) keeps its bytes, because no build writes into an existing
+    file."""
+    out = tmp_path / "site"
+    build(starter, out)
+    page = out / "index.html"
+    backup = tmp_path / "backup-index.html"
+    os.link(page, backup)
+    original = page.read_bytes()
+    tampered = out / "tree.html"
+    tampered.write_bytes(b"edited by hand")
+    before = page.stat().st_ino
+    build(starter, out)
+    assert page.stat().st_ino == before  # unchanged: linked, not written again
+    assert tampered.read_bytes() != b"edited by hand"  # rebuilt from the plan
+    clean = tmp_path / "clean"
+    build(starter, clean)
+    assert tree_digest(out) == tree_digest(clean)
+    assert 'title = "' in (starter / "atlas.toml").read_text("utf-8")
+    (starter / "atlas.toml").write_text((starter / "atlas.toml").read_text("utf-8").replace(
+        'title = "', 'title = "Renamed: '), encoding="utf-8")
+    build(starter, out)
+    assert page.read_bytes() != original
+    assert backup.read_bytes() == original  # the hard-linked copy was not written into
 
 
 def test_output_folder_safety(starter, tmp_path):

@@ -35,7 +35,6 @@ Hand example, ``((A:1,B:1):1,C:2)`` with values 1, 3, 8: the root estimate is th
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats
 
 from atlas.analysis.tree import Tree
 from atlas.errors import Problems
@@ -158,6 +157,8 @@ def brownian_ancestors(tree: Tree, values: np.ndarray) -> tuple[np.ndarray, np.n
     observed = np.isfinite(x)
     total = np.where(observed, 1.0, prec + above_prec)
     estimate = np.where(observed, np.nan_to_num(x), (prec * mean + above_prec * above_mean) / total)
+    from scipy import stats
+
     half = stats.norm.ppf(0.975) * np.sqrt(np.where(observed, 0.0, sigma2 / total))
     out = (estimate, estimate - half, estimate + half)
     return tuple(a[:, 0] for a in out) if single else out  # type: ignore[return-value]

@@ -26,7 +26,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from atlas.analysis.kernels import mantel_hits
 from atlas.analysis.tree import Tree
 from atlas.errors import AtlasError, Problem
 
@@ -230,6 +229,8 @@ def _count_at_least(perms: np.ndarray, xa: np.ndarray, zb: np.ndarray, iu: np.nd
                     ju: np.ndarray, r: float) -> int:
     """Relabellings in ``perms`` whose statistic reaches ``r`` (compiled:
     :func:`atlas.analysis.kernels.mantel_hits`)."""
+    from atlas.analysis.kernels import mantel_hits  # compiled on first use
+
     x = np.zeros(zb.shape)
     x[iu, ju] = xa
     return int(mantel_hits(np.ascontiguousarray(perms, dtype=np.int64), x,

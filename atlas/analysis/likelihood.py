@@ -45,9 +45,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, special, stats
 
-from atlas.analysis.kernels import BLOCK, padded, root_logliks, up_pass
 from atlas.analysis.tree import Tree
 from atlas.errors import AtlasError, Problem, Problems, did_you_mean
 
@@ -379,9 +377,17 @@ def gamma_rates(alpha: float, n_cat: int = _N_GAMMA) -> np.ndarray:
     >>> [round(float(r), 4) for r in gamma_rates(1.0)]
     [0.137, 0.4768, 1.0, 2.3863]
     """
+    from scipy import special, stats  # imported when needed: a cached build needs neither
+
     inner = stats.gamma.ppf(np.arange(1, n_cat) / n_cat, a=alpha, scale=1.0 / alpha)
     cum = np.concatenate(([0.0], special.gammainc(alpha + 1.0, inner * alpha), [1.0]))
     return n_cat * np.diff(cum)
+
+
+def _logsumexp(x, **kwargs):
+    from scipy import special
+
+    return special.logsumexp(x, **kwargs)
 
 
 def _categories(alpha: float | None) -> np.ndarray:
@@ -430,6 +436,8 @@ def _up(
     (:func:`atlas.analysis.kernels.up_pass`, whose docstring has the recursion and the measured
     gain over the vectorised NumPy pass it replaced).
     """
+    from .kernels import BLOCK, padded, root_logliks, up_pass  # compiled on first use
+
     n_cat = p.shape[1]
     k, n_chars = tip_part.shape[1:]
     p = np.ascontiguousarray(p)
@@ -480,7 +488,7 @@ def _down(
 def _category_posterior(loglik: np.ndarray) -> np.ndarray:
     """``P(category g | data)`` from per-category log-likelihoods ``(n_cat, n_chars)``."""
     with np.errstate(invalid="ignore"):
-        return np.exp(loglik - special.logsumexp(loglik, axis=0, keepdims=True))
+        return np.exp(loglik - _logsumexp(loglik, axis=0, keepdims=True))
 
 
 def _constant_columns(group: _Group) -> np.ndarray:
@@ -500,9 +508,9 @@ def _group_logliks(
     _, _, loglik = _up(sched, p, tip_part, chain.pi, keep=False)
     log_w = -np.log(cat.size)
     n_real = group.cols.size
-    per_char = special.logsumexp(loglik[:, :n_real] + log_w, axis=0)
+    per_char = _logsumexp(loglik[:, :n_real] + log_w, axis=0)
     if variable_only:
-        p_constant = np.exp(special.logsumexp(loglik[:, n_real:] + log_w))
+        p_constant = np.exp(_logsumexp(loglik[:, n_real:] + log_w))
         per_char = per_char - np.log(max(1.0 - p_constant, 1e-300))
     return per_char
 
@@ -617,6 +625,8 @@ def fit_mk(
     if rates == "gamma4":
         grid = [start] + [np.append(start[:-1], a) for a in np.log([0.3, 3.0])]
         start = min(grid, key=objective)
+    from scipy import optimize
+
     result = optimize.minimize(objective, start, method="L-BFGS-B", bounds=bounds)
     best = result.x if result.fun <= objective(start) else start
     values, alpha = unpack(best)
