@@ -135,11 +135,11 @@ def test_defining_traits_keep_the_strongest_and_count_the_rest(demo_copy, monkey
     for v in range(results.tree.n_nodes):
         if results.tree.tip[v] < 0:
             rows, more = views.defining_traits(atlas, results, links, v, "../")
-            assert more == 0  # the demo's clades have fewer than CHANGE_ROWS
+            assert more == 0  # the demo's clades have fewer than DEFINING_ROWS
             full[v] = rows
     v, rows = max(full.items(), key=lambda kv: len(kv[1]))
     assert len(rows) >= 3
-    monkeypatch.setattr(views, "CHANGE_ROWS", 2)
+    monkeypatch.setattr(views, "DEFINING_ROWS", 2)
     kept, more = views.defining_traits(atlas, results, links, v, "../")
     assert len(kept) == 2 and more == len(rows) - 2
     assert [r["label"] for r in kept] == sorted(r["label"] for r in kept)

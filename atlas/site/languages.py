@@ -35,7 +35,7 @@ from ..i18n import (
     untranslated,
 )
 from ..model import Atlas
-from .views import root_of
+from .views import moved, root_of
 
 if TYPE_CHECKING:
     from ..analysis.results import Results
@@ -182,7 +182,7 @@ def render_languages(atlas: Atlas, results: Results, step: Callable[[str], None]
             html = {p: relocate(text, p, prefix, shared) for p, text in html.items()}
         files.update({prefix + p: data for p, data in made.items()})
         files.update({prefix + p: text.encode("utf-8") for p, text in html.items()})
-        pages += [replace(p, path=prefix + p.path) for p in plan.pages]
+        pages += [moved(p, prefix + p.path) for p in plan.pages]
         if first is plan:  # the theme's assets, once, at the root; a child theme's win
             for folder in reversed(theme.asset_folders):
                 for asset in sorted(folder.rglob("*")):

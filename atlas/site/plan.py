@@ -31,7 +31,7 @@ from . import (
 )
 from .figures import tree_layout, tree_svg
 from .mapsvg import land_paths, map_svg
-from .views import Links, PagePlan, root_of
+from .views import FrozenPage, Links, PagePlan, root_of
 
 
 @dataclass(frozen=True)
@@ -269,6 +269,15 @@ def _note_free_plan(atlas: Atlas, results: Results, links: Links, notes_by_node:
     return NoteFree(layout, pages, method_figures, data, files)
 
 
+def _frozen(part: NoteFree, variants: dict) -> NoteFree:
+    """The note-free plan with its images' ``srcset`` added and every page frozen
+    (:class:`views.FrozenPage`) but the first page of each object, which gets its note."""
+    pages = {kind: [p if p.template == "object.html"
+                    else FrozenPage.of(images.with_srcset(p, variants)) for p in plans]
+             for kind, plans in part.pages.items()}
+    return replace(part, pages=pages)
+
+
 def _with_notes(atlas: Atlas, links: Links, pages: list[PagePlan]) -> list[PagePlan]:
     """The object pages of the note-free plan with each object's note put in.
 
@@ -313,9 +322,11 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
         offline = Background(_download_files, (atlas, results, released), enabled=jobs > 1)
     links = views.make_links(atlas, results)
     notes_by_node = views.clade_notes_by_node(atlas, results)
+    # Only images that a published page shows are published: restricted ones never leave.
+    media, variants = images.publish_images(atlas)
     part = cache.get("plan", key) if cache.enabled else None
     if not isinstance(part, NoteFree):
-        part = _note_free_plan(atlas, results, links, notes_by_node, jobs)
+        part = _frozen(_note_free_plan(atlas, results, links, notes_by_node, jobs), variants)
         if cache.enabled:
             cache.put("plan", key, part, keep=2)
     pages: list[PagePlan] = [
@@ -345,9 +356,7 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
         downloads_page, download_files = downloads.downloads_plan(
             atlas, results, links, released=released, texts=texts)
         pages.append(downloads_page)
-    # Only images that a published page shows are published: restricted ones never leave.
-    media, variants = images.publish_images(atlas)
-    pages = [images.with_srcset(p, variants) for p in pages]
+    pages = [p if isinstance(p, FrozenPage) else images.with_srcset(p, variants) for p in pages]
 
     data = dict(part.data)
     data.update(search_data)

@@ -22,6 +22,7 @@ from .. import parallel
 from ..cache import Cache, Hasher
 from ..i18n import catalogue_path
 from ..parallel import map_forked
+from .views import FrozenPage
 
 if TYPE_CHECKING:
     from .render import SiteInfo, Theme
@@ -48,6 +49,9 @@ def page_key(base: str, page: PagePlan) -> str:
     key (``""``): the page is always rendered.
     """
     h = hashlib.sha256(base.encode())
+    if isinstance(page, FrozenPage):  # the same pickle, made when it was planned
+        h.update(page.blob)
+        return h.hexdigest()
     try:
         h.update(pickle.dumps((page.path, page.template, page.scripts, page.context),
                               protocol=pickle.HIGHEST_PROTOCOL))

@@ -9,8 +9,9 @@ say without rendering anything.
 from __future__ import annotations
 
 import math
+import pickle
 from collections import Counter, defaultdict
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from markupsafe import Markup, escape
@@ -59,6 +60,56 @@ class PagePlan:
     template: str
     context: dict
     scripts: tuple[str, ...] = ()  # site-root-relative script paths, in load order
+
+
+class FrozenPage:
+    """A planned page kept as the pickle of ``(path, template, scripts, context)``.
+
+    The note-free plan (``plan._note_free_plan``) stores its pages so: a rebuild reads them
+    as bytes, keys them by those bytes (``renderpool.page_key``) and unpickles a context only
+    for a page it must render again. Unpickling every clade and character context took most
+    of the planning of a one-note rebuild (the 1,000-object synthetic atlas's plan entry holds
+    some 200,000 rows). ``context`` thaws on first use; otherwise it reads as a
+    :class:`PagePlan`.
+    """
+
+    __slots__ = ("path", "template", "scripts", "blob", "_context")
+
+    def __init__(self, path: str, template: str, scripts: tuple[str, ...], blob: bytes):
+        self.path, self.template, self.scripts, self.blob = path, template, scripts, blob
+        self._context = None
+
+    @classmethod
+    def of(cls, page: PagePlan) -> FrozenPage | PagePlan:
+        """``page`` frozen, or as it is when its context cannot be pickled."""
+        try:
+            blob = pickle.dumps((page.path, page.template, page.scripts, page.context),
+                                protocol=pickle.HIGHEST_PROTOCOL)
+        except (pickle.PicklingError, TypeError, AttributeError):
+            return page
+        return cls(page.path, page.template, page.scripts, blob)
+
+    @property
+    def context(self) -> dict:
+        if self._context is None:
+            self._context = pickle.loads(self.blob)[3]
+        return self._context
+
+    def moved(self, path: str) -> FrozenPage:
+        """The same page listed under another path (the context keeps its own)."""
+        return FrozenPage(path, self.template, self.scripts, self.blob)
+
+    def __getstate__(self):
+        return (self.path, self.template, self.scripts, self.blob)
+
+    def __setstate__(self, state) -> None:
+        self.path, self.template, self.scripts, self.blob = state
+        self._context = None
+
+
+def moved(page: PagePlan | FrozenPage, path: str) -> PagePlan | FrozenPage:
+    """``page`` under another output path (a language's prefix added)."""
+    return page.moved(path) if isinstance(page, FrozenPage) else replace(page, path=path)
 
 
 def root_of(path: str) -> str:
@@ -157,7 +208,7 @@ def clade_notes_by_node(atlas: Atlas, results: Results) -> dict[int, list]:
     return dict(out)
 
 
-FIGURE_TIPS = 30  # larger neighbourhoods are not drawn inline (about 13 KB of SVG at 30)
+FIGURE_TIPS = 24  # larger neighbourhoods are not drawn inline (about 10 KB of SVG at 24)
 
 
 MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clades list all)
@@ -168,6 +219,7 @@ MEMBER_CHIPS = 100  # a clade page lists at most this many objects (its sub-clad
 STATE_CHIPS = 40  # objects named per state on a character page
 CHANGE_ROWS = 30  # branches (character page) or characters (clade page) with the most change
 BORROWED_CHARACTERS = 8  # characters named per row of a borrowing table
+DEFINING_ROWS = 20  # defining traits named on a clade page (the strongest)
 PLACE_CHIPS = 60  # places named on a clade page (those with most of its objects); the map has all
 
 
@@ -568,7 +620,7 @@ DEFINING_GAIN = 0.8  # expected gains on the stem at least this count as definin
 def defining_traits(atlas: Atlas, results: Results, links: Links, v: int, root: str) -> list:
     """The traits that define a clade: changes on its stem that every most parsimonious
     reconstruction shares (Fitch 1971), and gains of at least ``DEFINING_GAIN`` expected
-    changes under the likelihood model (Minin & Suchard 2008); at most :data:`CHANGE_ROWS`
+    changes under the likelihood model (Minin & Suchard 2008); at most :data:`DEFINING_ROWS`
     of them, and how many more there are."""
     if int(results.tree.parent[v]) < 0:
         return [], 0
@@ -592,9 +644,9 @@ def defining_traits(atlas: Atlas, results: Results, links: Links, v: int, root: 
                     entry["evidence"], atlas.i18n.gettext(
                         "likelihood: {gain} expected gains").format(
                             gain=atlas.i18n.number(gain, 2))]))
-    # the strongest CHANGE_ROWS (unambiguous under parsimony first, then by expected gains),
+    # the strongest DEFINING_ROWS (unambiguous under parsimony first, then by expected gains),
     # in label order; the page says how many more
-    kept = sorted(found, key=lambda j: found[j]["rank"])[:CHANGE_ROWS]
+    kept = sorted(found, key=lambda j: found[j]["rank"])[:DEFINING_ROWS]
     return [found[j] for j in sorted(kept, key=lambda j: discrete[j].label)], \
         len(found) - len(kept)
 
