@@ -96,10 +96,21 @@ def render_markdown(text: str, root: str, targets: Targets) -> str:
     return re.sub(r"<img(?![^>]*\balt=)", '<img alt=""', html)
 
 
+_PLAIN: list[markdown.Markdown] = []
+
+
+@functools.lru_cache(maxsize=4096)
+def _plain_words(text: str) -> tuple[str, ...]:
+    """The words of a note without markup (one plain converter, reset between notes)."""
+    if not _PLAIN:
+        _PLAIN.append(markdown.Markdown())
+    html = _PLAIN[0].reset().convert(text)
+    return tuple(unescape(nh3.clean(html, tags=set())).split())
+
+
 def plain_text(text: str, limit: int = 200) -> str:
     """The first words of a note as plain text, for summaries and descriptions."""
-    html = markdown.markdown(text)
-    words = unescape(nh3.clean(html, tags=set())).split()
+    words = _plain_words(text)
     out = " ".join(words)
     if len(out) > limit:
         out = out[:limit].rsplit(" ", 1)[0] + "…"
