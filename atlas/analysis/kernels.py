@@ -21,10 +21,11 @@ Down pass, at each child ``e`` of an internal node ``v`` taken parents first::
     A_e[g, b', c] = sum_a b[a, c] P_e[g, a, b'], rescaled to max 1
 
 Why compiled: the vectorised NumPy passes spent most of their time gathering and scattering
-rows by fancy indexing (``down[edges]``, ``down[parents] = ...``), which copies. On the
-synthetic 400 objects x 300 characters x 500 trees atlas (``benchmarks/make_synthetic.py``)
-one tree's up and down passes went from 105 ms to 21 ms (one core; see
-``benchmarks/bench_likelihood.py``), with the same results to 1e-15.
+rows by fancy indexing (``down[edges]``, ``down[parents] = ...``), which copies, and taking a
+logarithm per node and character for the scale factors. Measured in one run on a random
+400-tip tree with 300 characters (240 binary, 60 of three states; four rate categories), the
+averaging over sampled trees (:func:`sample_tree`) went from 158 ms to 39 ms a tree, with the
+same results to 3e-14.
 """
 
 from __future__ import annotations

@@ -28,12 +28,12 @@ Only variable characters are usually recorded; the Mkv correction (Lewis 2001) c
 it: ``P(x | variable) = sum_c w_c L_c(x) / (1 - sum_c w_c sum_s L_c(all tips in state s))``,
 the constant-pattern probabilities being computed for every state count and rate category.
 
-The kernel is Felsenstein's (1981, J. Mol. Evol. 17:368-376) pruning algorithm, vectorised over
-characters, rate categories and all the nodes of one height at once, with the conditional
-likelihoods rescaled to a maximum of 1 at every node and the log scale factors summed, so trees
-of thousands of tips do not underflow. The down pass gives the likelihood of the data outside
-each subtree, and so the marginal posterior state probabilities at every node (Yang, Kumar &
-Nei 1995, Genetics 141:1641-1650).
+The kernel is Felsenstein's (1981, J. Mol. Evol. 17:368-376) pruning algorithm, compiled
+(:mod:`atlas.analysis.kernels`) over nodes in postorder, rate categories, states and blocks of
+characters, with a node's conditional likelihoods rescaled when they fall below ``1e-100`` and
+the log scale factors summed, so trees of thousands of tips do not underflow. The down pass
+gives the likelihood of the data outside each subtree, and so the marginal posterior state
+probabilities at every node (Yang, Kumar & Nei 1995, Genetics 141:1641-1650).
 
 Branch lengths must be given and non-negative; a zero-length branch gets a millionth of the
 mean positive length, so tips that differ across it stay possible.
