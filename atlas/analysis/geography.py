@@ -208,33 +208,33 @@ def mantel(a, b, *, permutations: int | str = 999, seed: int = 1) -> MantelResul
     r = float(xa @ zb[iu, ju])
     if total == 0:
         return MantelResult(r, math.nan, 0, n)
+    upper = np.zeros(zb.shape)  # made once for every chunk of permutations
+    upper[iu, ju] = xa
+    zb = np.ascontiguousarray(zb)
     chunk = max(1, _CHUNK_VALUES // len(iu))
     hits = 0
     if exact:
         orders = itertools.permutations(range(n))
         while batch := list(itertools.islice(orders, chunk)):
-            hits += _count_at_least(np.asarray(batch), xa, zb, iu, ju, r)
+            hits += _count_at_least(np.asarray(batch), upper, zb, r)
         return MantelResult(r, hits / total, total, n)
     rng = np.random.default_rng(seed)
     done = 0
     while done < total:
         k = min(chunk, total - done)
         perms = np.argsort(rng.random((k, n)), axis=1, kind="stable")
-        hits += _count_at_least(perms, xa, zb, iu, ju, r)
+        hits += _count_at_least(perms, upper, zb, r)
         done += k
     return MantelResult(r, (hits + 1) / (total + 1), total, n)
 
 
-def _count_at_least(perms: np.ndarray, xa: np.ndarray, zb: np.ndarray, iu: np.ndarray,
-                    ju: np.ndarray, r: float) -> int:
+def _count_at_least(perms: np.ndarray, upper: np.ndarray, zb: np.ndarray, r: float) -> int:
     """Relabellings in ``perms`` whose statistic reaches ``r`` (compiled:
-    :func:`atlas.analysis.kernels.mantel_hits`)."""
+    :func:`atlas.analysis.kernels.mantel_hits`; ``upper`` holds the standardised first
+    matrix above its diagonal)."""
     from atlas.analysis.kernels import mantel_hits  # compiled on first use
 
-    x = np.zeros(zb.shape)
-    x[iu, ju] = xa
-    return int(mantel_hits(np.ascontiguousarray(perms, dtype=np.int64), x,
-                           np.ascontiguousarray(zb), float(r)))
+    return int(mantel_hits(np.ascontiguousarray(perms, dtype=np.int64), upper, zb, float(r)))
 
 
 def _square(m, which: str) -> np.ndarray:
