@@ -13,7 +13,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from . import __version__
-from .audit import audit_budget, audit_leaks, audit_links, audit_plotly, page_weights
+from .audit import (audit_budget, audit_leaks, audit_links, audit_plotly, digest_files,
+                    page_weights)
 from .cache import Cache
 from .config import Config, load_config
 from .errors import AtlasError, Problem, Problems
@@ -104,15 +105,20 @@ def build(root: Path | str, out: Path | str | None = None, profile: str = "publi
 
     step("Analysing: summary tree, support, parsimony, likelihood")
     results = analyse(atlas, jobs=jobs, cache=cache)
-    plan, files = render(atlas, results, step, jobs=jobs, cache=cache)
+    from .site.markdown import kept_conversions
+
+    with kept_conversions(cache):
+        plan, files = render(atlas, results, step, jobs=jobs, cache=cache)
     step("Auditing links, withheld material and page weight")
     all_files = dict(files)
     all_files.update({p: b"" for p in plan.copies})
+    digests = digest_files(files) if cache.enabled else {}  # shared by the audits below
     leaks = audit_leaks({**files, **{p: src.read_bytes() for p, src in plan.copies.items()
-                                     if not p.startswith("assets/")}}, atlas.withheld_text)
+                                     if not p.startswith("assets/")}}, atlas.withheld_text,
+                        cache, digests)
     if leaks:
         raise AtlasError(leaks)
-    link_problems = audit_links(all_files, cache, jobs)
+    link_problems = audit_links(all_files, cache, jobs, digests)
     weight = audit_budget(files, config.page_budget) + audit_plotly(files)
     if weight:
         raise AtlasError(weight)

@@ -189,6 +189,26 @@ def test_leak_audit_catches_planted_text():
     assert [(p.file, p.line) for p in found] == [("a.html", 2), ("b.html", 1)]
 
 
+
+def test_leak_audit_remembers_only_files_that_passed(tmp_path):
+    # Invented files and canaries. The cache spares a file whose bytes passed against the same
+    # canaries; it must never spare a file that leaked, nor a file checked against other ones.
+    from atlas.audit import audit_leaks
+    from atlas.cache import Cache, Hasher
+
+    cache = Cache(tmp_path / "cache")
+    clean = {"a.html": b"<p>lamp-1</p>", "b.html": b"<p>cup-3</p>"}
+    assert audit_leaks(clean, ("lamp-2",), cache) == []
+    remembered = cache.get("leaks", Hasher("leak audit", ["lamp-2"]).hexdigest())
+    assert remembered == {hashlib.sha256(b).hexdigest() for b in clean.values()}
+    leaking = {**clean, "c.html": b"<p>lamp-2</p>"}
+    for _ in range(2):  # the leak is found again: it was not remembered
+        assert [p.file for p in audit_leaks(leaking, ("lamp-2",), cache)] == ["c.html"]
+    # a file that passed against "lamp-2" is read again against new canaries
+    assert [p.file for p in audit_leaks(clean, ("cup-3",), cache)] == ["b.html"]
+    # and the same answer as with no cache at all, both times
+    assert audit_leaks(leaking, ("lamp-2",)) == audit_leaks(leaking, ("lamp-2",), cache)
+
 def test_trait_sheet_defining_traits_and_brief(starter):
     # Invented starter data: spoon-a and spoon-b alone have hooked handles (hook = 1), spoon-c
     # and spoon-d have none (0) and the rest cannot have one (-), so on the consensus tree the

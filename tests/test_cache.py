@@ -107,9 +107,20 @@ def test_cached_rebuilds_match_a_clean_build_after_every_kind_of_change(source, 
 def test_a_corrupt_or_deleted_cache_is_rebuilt(source, tmp_path):
     build(source, tmp_path / "warm", use_cache=True)
     entries = [p for p in (source / FOLDER).rglob("*.pickle")]
-    assert {p.parent.name for p in entries} >= {"trees", "analysis", "audit"}
+    assert {p.parent.name for p in entries} >= {"trees", "analysis", "audit", "markdown"}
     for k, path in enumerate(entries):  # truncated, garbage, empty
         path.write_bytes([b"", b"not a pickle", path.read_bytes()[:20]][k % 3])
+    # compiled templates: garbage, and cut short one byte past Jinja's header, where Jinja's
+    # own reader would raise
+    from jinja2.bccache import bc_magic
+
+    compiled = [p for p in (source / FOLDER).glob("templates-*/*") if p.is_file()]
+    assert compiled
+    for k, path in enumerate(compiled):
+        path.write_bytes([b"garbage", path.read_bytes()[:len(bc_magic) + 1]][k % 2])
+    from atlas.site import render
+
+    render._ENVIRONMENTS.clear()  # as in a new process: templates are read from the folder
     _same_as_clean(source, tmp_path, "corrupt")
     for path in (source / FOLDER).rglob("*"):
         if path.is_file():
@@ -172,3 +183,27 @@ def test_a_table_grows_by_small_additions_and_is_rewritten_whole_past_its_share(
     assert cache.get("t", "key") == many
     assert not (tmp_path / "cache" / "t-added" / "key.pickle").exists()
     assert cache.get_table("t", "key") == (many, {})
+
+
+def test_a_note_edit_converts_that_note_alone_and_the_result_is_a_clean_builds(
+        source, tmp_path, monkeypatch):
+    from atlas.site import markdown
+
+    converted = []
+
+    def counting(real):
+        return lambda text: converted.append(text) or real(text)
+
+    monkeypatch.setattr(markdown, "_convert", counting(markdown._convert.__wrapped__))
+    monkeypatch.setattr(markdown, "_words", counting(markdown._words.__wrapped__))
+    build(source, tmp_path / "a", use_cache=True)
+    assert len(converted) > 10  # every note, page and summary of the starter
+    converted.clear()
+    _edit(source, "objects/spoon-b.md", "so it is coded unknown", "so it is coded as unknown")
+    _same_as_clean(source, tmp_path, "note")  # the clean build converts everything again
+    edited = [t for t in converted if "coded as unknown" in t]
+    assert edited and len(converted) > len(edited)
+    converted.clear()
+    _edit(source, "objects/spoon-b.md", "coded as unknown", "coded, so, as unknown")
+    build(source, tmp_path / "b", use_cache=True)
+    assert converted and all("coded, so, as unknown" in t for t in converted)

