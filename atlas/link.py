@@ -332,7 +332,7 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
     for i, name in present:
         cells[i] = matrix.rows[name]
     # Column by column, each distinct cell read once (a column holds a few distinct cells):
-    # 400 objects x 300 characters, 0.31 s cell by cell -> 0.03 s.
+    # 400 objects x 300 characters, under a profiler, 0.32 s cell by cell -> 0.03 s.
     index = np.array([i for i, _ in present], dtype=np.int64)
     by_column = list(zip(*(cells[i] for i in index))) if present else []
     not_numbers: list[tuple[int, int]] = []
