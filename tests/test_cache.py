@@ -185,7 +185,7 @@ def test_a_table_grows_by_small_additions_and_is_rewritten_whole_past_its_share(
     assert cache.get_table("t", "key") == (many, {})
 
 
-def test_a_note_edit_converts_that_note_alone_and_the_result_is_a_clean_builds(
+def test_a_note_edit_converts_that_note_alone_and_matches_a_clean_build(
         source, tmp_path, monkeypatch):
     from atlas.site import markdown
 
