@@ -13,8 +13,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from . import __version__
-from .audit import (audit_budget, audit_leaks, audit_links, audit_plotly, digest_files,
-                    page_weights)
+from .audit import audit_budget, audit_leaks, audit_links, audit_plotly, digest_files, page_weights
 from .cache import Cache
 from .config import Config, load_config
 from .errors import AtlasError, Problem, Problems

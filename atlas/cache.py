@@ -60,9 +60,10 @@ class Cache:
             return None
         return value if stored_key == key else None
 
-    def put(self, kind: str, key: str, value: Any, keep: int = 4) -> None:
+    def put(self, kind: str, key: str, value: Any, keep: int | None = 4) -> None:
         """Store ``value``, keeping only the ``keep`` most recently written entries of ``kind``
-        (so the cache does not grow with every edit of a source).
+        (so the cache does not grow with every edit of a source; ``None``: keep them all, for
+        kinds of many entries that :meth:`prune` trims instead).
 
         Written to a temporary name and renamed, so a reader never sees half an entry.
         Failing to write (read-only folder, full disk, an unpicklable value) only means no
@@ -81,6 +82,8 @@ class Cache:
             with open(tmp, "wb") as fh:
                 pickle.dump((key, value), fh, protocol=pickle.HIGHEST_PROTOCOL)
             os.replace(tmp, path)
+            if keep is None:
+                return
             entries = sorted(path.parent.glob("*.pickle"), key=lambda f: -f.stat().st_mtime_ns)
             for old in entries[keep:]:
                 if old != path:
@@ -92,6 +95,15 @@ class Cache:
                     tmp.unlink(missing_ok=True)
             return
 
+
+    def prune(self, kind: str, keys: set[str]) -> None:
+        """Remove every entry of ``kind`` whose key is not in ``keys``."""
+        folder = self.folder / kind if self.folder is not None else None
+        if folder is None or not folder.is_dir():
+            return
+        for path in folder.glob("*.pickle"):
+            if path.stem not in keys:
+                path.unlink(missing_ok=True)
 
     # --- tables: big content-addressed dicts (page key -> HTML), updated a little per edit ---
 

@@ -121,12 +121,25 @@ def _cell(state: int, k: int, rng: np.random.Generator, applicable: bool) -> str
     return str(state)
 
 
+def _photo(path: Path, rng: np.random.Generator, width: int = 2400, height: int = 1600) -> None:
+    """An invented photograph: smooth random colour fields with grain, saved as a JPEG."""
+    from PIL import Image
+
+    coarse = rng.integers(40, 220, size=(height // 100 + 1, width // 100 + 1, 3), dtype=np.uint8)
+    image = Image.fromarray(coarse, "RGB").resize((width, height), Image.Resampling.BICUBIC)
+    grain = rng.integers(-12, 13, size=(height, width, 3))
+    pixels = np.clip(np.asarray(image, dtype=np.int16) + grain, 0, 255).astype(np.uint8)
+    Image.fromarray(pixels, "RGB").save(path, "JPEG", quality=90)
+
+
 def make_synthetic(out: Path | str, objects: int = 400, characters: int = 300,
-                   trees: int = 500, seed: int = 1, page_budget: int | None = None) -> Path:
+                   trees: int = 500, seed: int = 1, page_budget: int | None = None,
+                   photos: int = 0) -> Path:
     """Write an invented atlas source folder into ``out`` (which must not exist yet).
 
     ``page_budget`` (KB) goes into atlas.toml when given (the benchmarks raise it to time
     builds whose pages are still too heavy, and report the page weights themselves).
+    ``photos`` of the objects get an invented 2400 x 1600 photograph each.
     """
     import sys
 
@@ -172,13 +185,22 @@ def make_synthetic(out: Path | str, objects: int = 400, characters: int = 300,
     # object notes
     notes = out / "objects"
     notes.mkdir()
+    if photos:
+        (out / "media").mkdir()
+        pictures = np.random.default_rng(seed + 1)  # the other inputs stay as without photos
     for i, oid in enumerate(ids):
         access = "community" if i % 50 == 49 else "public"
         words = " ".join(f"detail{int(w)}" for w in rng.integers(0, 999, size=40))
+        image = ""
+        if i < photos:
+            _photo(out / "media" / f"{oid}.jpg", pictures)
+            image = (f"images:\n  - file: \"{oid}.jpg\"\n    alt: \"Invented photograph of "
+                     f"synthetic vessel {i + 1}\"\n    credit: \"Invented\"\n")
         notes.joinpath(f"{oid}.md").write_text(
             f"---\nid: \"{oid}\"\ntitle: \"Synthetic vessel {i + 1}\"\n"
             f"place: \"{place_ids[i % n_places]}\"\nperiod: \"invented period {i % 7 + 1}\"\n"
-            f"community: \"Invented workshop {i % 12 + 1}\"\naccess: \"{access}\"\n---\n\n"
+            f"community: \"Invented workshop {i % 12 + 1}\"\naccess: \"{access}\"\n"
+            f"{image}---\n\n"
             f"An invented object for benchmarking ({INVENTED}) Field words: {words}.\n",
             encoding="utf-8")
 
@@ -239,8 +261,10 @@ def main() -> None:
     parser.add_argument("--characters", type=int, default=300)
     parser.add_argument("--trees", type=int, default=500)
     parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--photos", type=int, default=0, help="objects with a photograph")
     args = parser.parse_args()
-    make_synthetic(args.out, args.objects, args.characters, args.trees, args.seed)
+    make_synthetic(args.out, args.objects, args.characters, args.trees, args.seed,
+                   photos=args.photos)
     print(f"Wrote an invented atlas of {args.objects} objects, {args.characters} characters "
           f"and {args.trees} trees into {args.out}")
 

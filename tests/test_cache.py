@@ -24,7 +24,19 @@ EXTRA = {
                   'needs = { character = "handle", state = "1" }\n',
     "contacts.csv": "from,to,characters,note\nspoon-a,spoon-d,notch,Invented exchange.\n",
     "media/spoon-a.svg": SVG.format("336699"),
+    "media/spoon-b.png": b"",  # written by the fixture (an invented raster, see _png)
 }
+
+
+def _png(colour: tuple[int, int, int]) -> bytes:
+    """An invented 400 x 200 photograph stand-in: wide enough for resized copies."""
+    import io
+
+    from PIL import Image
+
+    out = io.BytesIO()
+    Image.new("RGB", (400, 200), colour).save(out, "PNG")
+    return out.getvalue()
 
 
 def _files(out: Path) -> dict[str, bytes]:
@@ -47,7 +59,10 @@ def source(starter: Path) -> Path:
     _edit(starter, "objects/spoon-a.md", "sources:\n",
           'images:\n  - file: "media/spoon-a.svg"\n    alt: "A blue rectangle standing in '
           'for a photograph (invented)"\n    credit: "Invented"\n    licence: "CC-BY-4.0"\n'
+          '  - file: "media/spoon-b.png"\n    alt: "A green rectangle standing in for a '
+          'photograph (invented)"\n    credit: "Invented"\n'
           "sources:\n")
+    (starter / "media" / "spoon-b.png").write_bytes(_png((40, 120, 60)))
     return starter
 
 
@@ -91,6 +106,9 @@ def test_cached_rebuilds_match_a_clean_build_after_every_kind_of_change(source, 
         _same_as_clean(source, tmp_path, what.replace(" ", "-"))
     (source / "media" / "spoon-a.svg").write_text(SVG.format("993366"), encoding="utf-8")
     _same_as_clean(source, tmp_path, "image")
+    (source / "media" / "spoon-b.png").write_bytes(_png((120, 40, 60)))  # resized copies too
+    _same_as_clean(source, tmp_path, "raster-image")
+    assert (tmp_path / "cached-raster-image" / "media" / "spoon-b-320w.png").is_file()
     # the reference itself moved: the last cached build shows the last edits
     page = (tmp_path / "cached-image" / "pages" / "about.html").read_text("utf-8")
     assert "made up" in page

@@ -224,3 +224,45 @@ def test_srcset_for_the_object_page(published):
 def test_publishing_is_deterministic(published):
     atlas, _, files, variants = published
     assert images.publish_images(atlas) == (files, variants)
+
+
+def test_the_cache_spares_encoding_unchanged_images_and_forgets_replaced_ones(
+        tmp_path, monkeypatch):
+    from atlas.cache import Cache
+
+    cache = Cache(tmp_path / "cache")
+    calls = []
+    real = images._raster
+    monkeypatch.setattr(images, "_raster",
+                        lambda path, name, *rest: calls.append(name) or real(path, name, *rest))
+    atlas, _ = image_atlas(tmp_path / "a")
+    first = images.publish_images(atlas, cache)
+    assert sorted(calls) == ["drawing.png", "photo.jpg", "turned.jpg"]
+    assert first == images.publish_images(atlas)  # the same as with no cache
+    calls.clear()
+    assert images.publish_images(atlas, cache) == first
+    assert calls == []  # nothing decoded or encoded again
+    # another photograph under the same name: that one alone is encoded, the old entry goes
+    # (the other images are copied: photo() embeds an ICC profile that carries its time)
+    same = {f"media/{p.name}": p.read_bytes() for p in (tmp_path / "a" / "media").iterdir()}
+    atlas, _ = image_atlas(tmp_path / "b", {**same, "media/photo.jpg": photo(900, 600)})
+    files, variants = images.publish_images(atlas, cache)
+    assert calls == ["photo.jpg"]
+    assert variants["photo.jpg"][-1] == {"src": "photo.jpg", "width": 900, "height": 600}
+    assert len(list((tmp_path / "cache" / "images").glob("*.pickle"))) == 3
+
+
+def test_an_image_that_cannot_be_published_is_refused_again_with_a_cache(tmp_path):
+    from atlas.cache import Cache
+
+    cache = Cache(tmp_path / "cache")
+    atlas, _ = image_atlas(tmp_path / "atlas", {"media/photo.jpg": b"\xff\xd8 not a photo"})
+    for _ in range(2):
+        with pytest.raises(AtlasError) as caught:
+            images.publish_images(atlas, cache)
+        assert [p.file for p in caught.value.problems] == ["media/photo.jpg"]
+
+
+def test_images_made_in_two_processes_are_the_same(published):
+    atlas, _, files, variants = published
+    assert images.publish_images(atlas, jobs=2) == (files, variants)

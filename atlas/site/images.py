@@ -26,8 +26,10 @@ import warnings
 from dataclasses import replace
 from pathlib import Path, PurePosixPath
 
+from ..cache import Cache, Hasher
 from ..errors import Problems
 from ..model import Atlas
+from ..parallel import map_forked
 from .views import PagePlan, root_of
 
 WIDTHS = (160, 320, 640, 1280)
@@ -159,16 +161,31 @@ def _raster(path: Path, name: str, shown_as: str, fmt: str,
     return files, variants
 
 
-def publish_images(atlas: Atlas) -> tuple[dict[str, bytes], dict[str, list[dict]]]:
+def _publish_raster(_shared: None, task: tuple) -> tuple[tuple[dict, list[dict]], Problems]:
+    path, name, shown_as, fmt = task
+    problems = Problems()
+    return _raster(path, name, shown_as, fmt, problems), problems
+
+
+def publish_images(atlas: Atlas, cache: Cache | None = None, jobs: int = 1
+                   ) -> tuple[dict[str, bytes], dict[str, list[dict]]]:
     """Every published image file (output path -> bytes) and, per original image name, its
     copies for ``srcset`` (``{"src", "width", "height"}``, narrowest first, the image itself
     last; an SVG has none).
 
+    Raster images are made in ``jobs`` forked processes. With a ``cache``, a raster image is
+    decoded and encoded again only when its bytes, its name or the Pillow version changed
+    (only an image published without a problem is remembered), and the entries of images no
+    longer shown are removed: 40 invented 2400 x 1600 photographs, 10.2 s without the cache,
+    0.05 s from it (``benchmarks/bench_images.py``).
+
     Raises one :class:`AtlasError` listing every image that cannot be published.
     """
+    cache = cache or Cache()
     problems = Problems()
-    files: dict[str, bytes] = {}
-    variants: dict[str, list[dict]] = {}
+    made: dict[str, tuple[dict, list[dict]]] = {}  # per name: (files, variants)
+    todo: list[tuple[str, tuple]] = []  # (cache key, task) of the rasters to make
+    used: set[str] = set()  # the cache keys of every raster shown
     names = shown_images(atlas)
     for name in names:
         path = atlas.media[name]
@@ -177,20 +194,43 @@ def publish_images(atlas: Atlas) -> tuple[dict[str, bytes], dict[str, list[dict]
         if suffix == ".svg":
             data = path.read_bytes()
             check_svg(data, shown_as, problems)
-            files[f"media/{name}"] = data
-            variants[name] = []
+            made[name] = ({f"media/{name}": data}, [])
         elif suffix in RASTER:
-            out, sizes = _raster(path, name, shown_as, RASTER[suffix], problems)
-            files.update(out)
-            variants[name] = sizes
+            key = ""
+            if cache.enabled:
+                import PIL
+
+                key = Hasher("published image", name, RASTER[suffix], WIDTHS, PIL.__version__,
+                             path.read_bytes()).hexdigest()
+                used.add(key)
+                stored = cache.get("images", key)
+                if isinstance(stored, tuple) and len(stored) == 2:
+                    made[name] = stored
+                    continue
+            todo.append((key, (path, name, shown_as, RASTER[suffix])))
         else:
             problems.error(shown_as, None, f"{suffix or 'a file without an extension'} is not an "
                            "image format browsers show", "use JPEG, PNG, WebP, GIF or SVG")
+    results = map_forked(_publish_raster, None, [task for _, task in todo],
+                         jobs if len(todo) > 1 else 1)
+    for (key, task), (out, found) in zip(todo, results):
+        made[task[1]] = out
+        problems.extend(found)
+        if key and not found.items:
+            cache.put("images", key, out, keep=None)
+    files: dict[str, bytes] = {}
+    variants: dict[str, list[dict]] = {}
+    for name in names:
+        if name in made:
+            files.update(made[name][0])
+            variants[name] = made[name][1]
     copies = {f"media/{v['src']}" for sizes in variants.values() for v in sizes[:-1]}
     for clash in sorted(copies & {f"media/{n}" for n in atlas.media}):
         problems.error(clash, None, "a resized copy of another image would replace this file",
                        "rename it (names ending in -<width>w are used for resized copies)")
     problems.raise_if_any()
+    if cache.enabled:
+        cache.prune("images", used)
     return files, variants
 
 

@@ -323,7 +323,7 @@ def plan_site(atlas: Atlas, results: Results, jobs: int = 1, cache: Cache | None
     links = views.make_links(atlas, results)
     notes_by_node = views.clade_notes_by_node(atlas, results)
     # Only images that a published page shows are published: restricted ones never leave.
-    media, variants = images.publish_images(atlas)
+    media, variants = images.publish_images(atlas, cache, jobs)
     part = cache.get("plan", key) if cache.enabled else None
     if not isinstance(part, NoteFree):
         part = _frozen(_note_free_plan(atlas, results, links, notes_by_node, jobs), variants)
