@@ -95,7 +95,6 @@ class Cache:
                     tmp.unlink(missing_ok=True)
             return
 
-
     def prune(self, kind: str, keys: set[str]) -> None:
         """Remove every entry of ``kind`` whose key is not in ``keys``."""
         folder = self.folder / kind if self.folder is not None else None

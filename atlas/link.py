@@ -267,6 +267,7 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
                            did_you_mean(name, taxa))
     characters: list[Character] = []
     n_disc = n_cont = 0
+    every_row = list(zip(*matrix.rows.values()))  # column by column, every row of the matrix
     for j, cid in enumerate(columns):
         note, row = notes.get(cid), rows.get(cid)
         meta = note.meta if note else {}
@@ -279,7 +280,7 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
                     matrix.labels.get(cid, cid))
         group = str(meta.get("group") or (row.group if row else "") or "Characters")
         declared = _declared_states(note, row, problems)
-        distinct = {r[j] for r in matrix.rows.values()}  # few per column: read each once
+        distinct = set(every_row[j]) if every_row else set()  # few per column: read each once
         observed = sorted({s for cell in distinct for s in _symbols(cell)})
         if kind == "continuous":
             symbols: tuple[str, ...] = ()
@@ -351,7 +352,7 @@ def _characters(sources: Sources, taxa: tuple[str, ...], problems: Problems):
         problems.error(matrix.file, matrix.row_lines[name],
                        f"object {name!r}: {cells[i][j]!r} in continuous character "
                        f"{characters[j].id!r} is not a number")
-    _check_symbols(matrix, characters, problems)
+    _check_symbols(matrix, characters, every_row, problems)
     ordered = np.array([c.ordered for c in disc], dtype=bool)
     return tuple(characters), masks, n_states, ordered, continuous, tuple(cells)
 
@@ -384,10 +385,11 @@ def _symbols(cell: str) -> list[str]:
 _STATE_CELL = re.compile(r"[0-9A-Za-z](/[0-9A-Za-z])*")
 
 
-def _check_symbols(matrix, characters, problems: Problems) -> None:
-    """Cells must be one symbol, ``?``, ``-`` or ``a/b``; say which ones are not."""
+def _check_symbols(matrix, characters, by_column: list[tuple[str, ...]],
+                   problems: Problems) -> None:
+    """Cells must be one symbol, ``?``, ``-`` or ``a/b``; say which ones are not.
+    ``by_column``: the matrix's cells column by column."""
     discrete = [j for j, c in enumerate(characters) if c.kind != "continuous"]
-    by_column = list(zip(*matrix.rows.values()))
     distinct = set().union(*(by_column[j] for j in discrete)) if by_column else set()
     if all(cell in ("?", "-") or _STATE_CELL.fullmatch(cell) for cell in distinct):
         return  # the usual case, decided on the distinct cells alone

@@ -12,7 +12,7 @@ from __future__ import annotations
 import functools
 import re
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from html import unescape
 
 import markdown
@@ -68,25 +68,28 @@ def _keep_attribute(tag: str, attr: str, value: str) -> str | None:
 
 _CONVERTER: list[markdown.Markdown] = []
 
-# Conversions kept across builds (:func:`kept_conversions`): (kind, note text) -> result.
-_KEPT: dict[tuple[str, str], object] = {}
-_USED: set[tuple[str, str]] = set()
-_NEW: dict[tuple[str, str], object] = {}
-_ACTIVE: list[bool] = []  # true inside a kept_conversions block with a cache
+@dataclass
+class _Kept:
+    """The conversions of an open :func:`kept_conversions` block: (kind, note text) -> result."""
+
+    stored: dict  # read from the cache
+    new: dict = field(default_factory=dict)  # made in this block
+    used: set = field(default_factory=set)  # every key asked for in this block
+
+
+_KEEPING: list[_Kept] = []  # the open block, if any
 
 
 def _kept(kind: str, text: str, convert):
-    if not _ACTIVE:
+    if not _KEEPING:
         return convert(text)
-    key = (kind, text)
-    if key in _KEPT:
-        value = _KEPT[key]
-    elif key in _NEW:
-        value = _NEW[key]
-    else:
-        value = _NEW[key] = convert(text)
-    _USED.add(key)
-    return value
+    kept, key = _KEEPING[0], (kind, text)
+    kept.used.add(key)
+    if key in kept.stored:
+        return kept.stored[key]
+    if key not in kept.new:
+        kept.new[key] = convert(text)
+    return kept.new[key]
 
 
 @contextmanager
@@ -101,22 +104,16 @@ def kept_conversions(cache: Cache | None):
         return
     key = Hasher("markdown conversions", markdown.__version__).hexdigest()
     table, added = cache.get_table("markdown", key)
-    _KEPT.clear()
-    _KEPT.update(table)
-    _USED.clear()
-    _NEW.clear()
-    _ACTIVE.append(True)
+    kept = _Kept(table)
+    _KEEPING[:] = [kept]
     try:
         yield
-        if _NEW:
-            fresh = {k: _NEW[k] if k in _NEW else _KEPT[k] for k in _USED}
-            added = {k: v for k, v in {**added, **_NEW}.items() if k in fresh}
+        if kept.new:
+            fresh = {k: kept.new[k] if k in kept.new else kept.stored[k] for k in kept.used}
+            added = {k: v for k, v in {**added, **kept.new}.items() if k in fresh}
             cache.put_table("markdown", key, fresh, added, keep=1)
     finally:
-        _ACTIVE.clear()
-        _KEPT.clear()
-        _USED.clear()
-        _NEW.clear()
+        _KEEPING.clear()
 
 
 @functools.lru_cache(maxsize=4096)

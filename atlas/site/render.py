@@ -75,8 +75,8 @@ def environment(theme: Theme, language: str = "en", compiled: Path | None = None
     With ``compiled``, a folder, templates are compiled once and kept there as bytecode
     (Jinja checks each against its template's source and its own version); a one-note
     rebuild of the 400-object synthetic atlas compiled its templates in 0.15 s, and reads
-    them in 0.003 s (profiled). The folder must be for this code alone (it does not know the options
-    below): :func:`render_site` names it by the code fingerprint."""
+    them in 0.003 s (profiled). The folder must be for this code alone (Jinja does not know
+    the options below): :func:`render_site` names it by the code fingerprint."""
     env = jinja2.Environment(
         bytecode_cache=_CompiledTemplates(str(compiled)) if compiled else None,
         loader=jinja2.FileSystemLoader([str(f / "templates") for f in theme.folders]),
